@@ -1,0 +1,367 @@
+#include "config.hpp"
+
+#include <toml++/toml.h>
+
+#include <algorithm>
+#include <fstream>
+#include <set>
+#include <sstream>
+
+#include "families.hpp"
+
+namespace toral {
+
+namespace {
+
+constexpr std::int64_t kMaxScan = 10'000'000;  // values in one scanned list or range
+
+class Ctx {
+ public:
+  explicit Ctx(std::string source) : source_(std::move(source)) {}
+  [[noreturn]] void fail(std::int64_t line, const std::string& key, const std::string& what) const {
+    std::ostringstream os;
+    os << source_;
+    if (line > 0) os << ':' << line;
+    os << ": " << (key.empty() ? "" : key + ": ") << what;
+    throw ConfigError(os.str());
+  }
+  [[noreturn]] void fail(const toml::node& n, const std::string& key, const std::string& what) const {
+    fail(static_cast<std::int64_t>(n.source().begin.line), key, what);
+  }
+
+  // Rejects keys outside `allowed` in table `t` (named `path`).
+  void only_keys(const toml::table& t, const std::string& path, std::set<std::string> allowed) const {
+    for (auto&& [k, v] : t) {
+      const std::string key(k.str());
+      if (!allowed.count(key)) {
+        std::string list;
+        for (const auto& a : allowed) list += (list.empty() ? "" : ", ") + a;
+        fail(static_cast<std::int64_t>(k.source().begin.line), path.empty() ? key : path + "." + key,
+             "unknown key (allowed here: " + list + ")");
+      }
+    }
+  }
+
+  std::int64_t integer(const toml::node& n, const std::string& key) const {
+    if (!n.is_integer()) fail(n, key, std::string("must be an integer, not ") + type_name(n));
+    return n.as_integer()->get();
+  }
+  std::string string(const toml::node& n, const std::string& key) const {
+    if (!n.is_string()) fail(n, key, std::string("must be a string, not ") + type_name(n));
+    return n.as_string()->get();
+  }
+  bool boolean(const toml::node& n, const std::string& key) const {
+    if (!n.is_boolean()) fail(n, key, std::string("must be true or false, not ") + type_name(n));
+    return n.as_boolean()->get();
+  }
+  const toml::table& table(const toml::node& n, const std::string& key) const {
+    if (!n.is_table()) fail(n, key, std::string("must be a table, not ") + type_name(n));
+    return *n.as_table();
+  }
+  std::string choice(const toml::node& n, const std::string& key, std::initializer_list<const char*> options) const {
+    const std::string s = string(n, key);
+    std::string list;
+    for (const char* o : options) {
+      if (s == o) return s;
+      list += (list.empty() ? "" : ", ") + std::string("\"") + o + "\"";
+    }
+    fail(n, key, "\"" + s + "\" is not one of " + list);
+  }
+
+  // An integer, a list of integers, or a range table {from, to, step}.
+  std::vector<std::int64_t> int_values(const toml::node& n, const std::string& key) const {
+    std::vector<std::int64_t> out;
+    if (n.is_integer()) {
+      out.push_back(n.as_integer()->get());
+    } else if (n.is_array()) {
+      const auto& a = *n.as_array();
+      for (const auto& e : a) out.push_back(integer(e, key));
+    } else if (n.is_table()) {
+      const auto& t = *n.as_table();
+      only_keys(t, key, {"from", "to", "step"});
+      if (!t.get("from") || !t.get("to")) fail(n, key, "a range needs both 'from' and 'to'");
+      const std::int64_t from = integer(*t.get("from"), key + ".from");
+      const std::int64_t to = integer(*t.get("to"), key + ".to");
+      const std::int64_t step = t.get("step") ? integer(*t.get("step"), key + ".step") : (to >= from ? 1 : -1);
+      if (step == 0) fail(*t.get("step"), key + ".step", "must not be 0");
+      if ((to - from) / step >= kMaxScan) fail(n, key, "range has more than 10^7 values");
+      for (std::int64_t v = from; step > 0 ? v <= to : v >= to; v += step) out.push_back(v);
+    } else {
+      fail(n, key, std::string("must be an integer, a list of integers or a range {from, to, step}, not ") +
+                       type_name(n));
+    }
+    if (out.empty()) fail(n, key, "empty scan: no values");
+    if (static_cast<std::int64_t>(out.size()) > kMaxScan) fail(n, key, "more than 10^7 values");
+    return out;
+  }
+
+  static const char* type_name(const toml::node& n) {
+    switch (n.type()) {
+      case toml::node_type::table: return "a table";
+      case toml::node_type::array: return "an array";
+      case toml::node_type::string: return "a string";
+      case toml::node_type::integer: return "an integer";
+      case toml::node_type::floating_point: return "a float";
+      case toml::node_type::boolean: return "a boolean";
+      default: return "a date/time";
+    }
+  }
+
+ private:
+  std::string source_;
+};
+
+template <int n>
+IntSq<n> read_matrix(const Ctx& cx, const toml::node& node, const std::string& key) {
+  IntSq<n> m;
+  const std::string shape = std::to_string(n) + "x" + std::to_string(n);
+  if (!node.is_array() || node.as_array()->size() != static_cast<std::size_t>(n))
+    cx.fail(node, key, "must be a " + shape + " integer matrix (a list of " + std::to_string(n) + " rows)");
+  const auto& rows = *node.as_array();
+  for (int i = 0; i < n; ++i) {
+    const auto& r = rows[static_cast<std::size_t>(i)];
+    if (!r.is_array() || r.as_array()->size() != static_cast<std::size_t>(n))
+      cx.fail(r, key, "row " + std::to_string(i) + " must have " + std::to_string(n) + " integers");
+    for (int j = 0; j < n; ++j) m(i, j) = cx.integer((*r.as_array())[static_cast<std::size_t>(j)], key);
+  }
+  return m;
+}
+
+GateSpec read_gate(const Ctx& cx, const toml::table& t, const std::string& where, bool bond,
+                   std::int64_t line) {
+  GateSpec g;
+  g.present = true;
+  g.where = where;
+  std::set<std::string> allowed = {"matrix", "family"};
+  if (bond) allowed.insert("kind");
+  const toml::node* fam = t.get("family");
+  const Family* family = nullptr;
+  if (fam) {
+    family = find_family(cx.string(*fam, where + ".family"));
+    if (!family) {
+      std::string list;
+      for (const auto& f : families()) list += (list.empty() ? "" : ", ") + f.name;
+      cx.fail(*fam, where + ".family", "unknown family \"" + fam->as_string()->get() + "\" (known: " + list + ")");
+    }
+    for (const auto& p : family->params) allowed.insert(p);
+  }
+  cx.only_keys(t, where, allowed);
+  if (const toml::node* k = t.get("kind"))
+    g.symplectic = cx.choice(*k, where + ".kind", {"position", "symplectic"}) == "symplectic";
+  const toml::node* mat = t.get("matrix");
+  if (mat && fam) cx.fail(*mat, where, "give either 'matrix' or 'family', not both");
+  if (!mat && !fam) cx.fail(line, where, "needs a 'matrix' or a 'family'");
+  if (mat) {
+    g.explicit_matrix = true;
+    if (bond && g.symplectic) {
+      g.m4 = read_matrix<4>(cx, *mat, where + ".matrix");
+      try {
+        validate_symplectic_gate(g.m4, where + ".matrix");
+      } catch (const ModelError& e) {
+        cx.fail(*mat, "", e.what());
+      }
+    } else {
+      g.m2 = read_matrix<2>(cx, *mat, where + ".matrix");
+      try {
+        if (bond)
+          validate_position_gate(g.m2, where + ".matrix");
+        else
+          validate_site_gate(g.m2, where + ".matrix");
+      } catch (const ModelError& e) {
+        cx.fail(*mat, "", e.what());
+      }
+    }
+    return g;
+  }
+  if (g.symplectic)
+    cx.fail(*fam, where + ".family", "families give 2x2 gates: use kind = \"position\" or an explicit 4x4 matrix");
+  g.family = family->name;
+  for (const auto& pname : family->params) {
+    const std::string key = where + "." + pname;
+    const toml::node* v = t.get(pname);
+    if (!v) cx.fail(line, where, "family \"" + family->name + "\" needs parameter '" + pname + "'");
+    ParamSpec p;
+    p.name = pname;
+    p.line = static_cast<std::int64_t>(v->source().begin.line);
+    const toml::table* vt = v->as_table();
+    if (vt && vt->get("draw")) {
+      cx.only_keys(*vt, key, {"draw"});
+      const toml::node& d = *vt->get("draw");
+      if (!d.is_array() || d.as_array()->size() != 2)
+        cx.fail(d, key + ".draw", "must be [lo, hi], an inclusive integer range");
+      p.drawn = true;
+      p.lo = cx.integer((*d.as_array())[0], key + ".draw");
+      p.hi = cx.integer((*d.as_array())[1], key + ".draw");
+      if (p.lo > p.hi) cx.fail(d, key + ".draw", "lo > hi: empty range");
+    } else {
+      p.values = cx.int_values(*v, key);
+    }
+    g.params.push_back(std::move(p));
+  }
+  // Every extreme parameter combination must evaluate without overflow.
+  std::vector<std::vector<std::int64_t>> ext;
+  for (const auto& p : g.params) {
+    if (p.drawn)
+      ext.push_back({p.lo, p.hi});
+    else
+      ext.push_back({*std::min_element(p.values.begin(), p.values.end()),
+                     *std::max_element(p.values.begin(), p.values.end())});
+  }
+  for (int mask = 0; mask < (1 << ext.size()); ++mask) {
+    std::vector<std::int64_t> vals;
+    for (std::size_t i = 0; i < ext.size(); ++i) vals.push_back(ext[i][(mask >> i) & 1]);
+    try {
+      const Mat2 m = family_matrix(g.family, vals);
+      validate_position_gate(m, where);
+      (void)embed_position_gate(m);
+    } catch (const std::exception& e) {
+      cx.fail(line, where, std::string("parameters out of range: ") + e.what());
+    }
+  }
+  return g;
+}
+
+SweepSpec read_sweep(const Ctx& cx, const toml::table& t, std::size_t index) {
+  SweepSpec s;
+  s.where = "sweep[" + std::to_string(index) + "]";
+  const std::int64_t line = static_cast<std::int64_t>(t.source().begin.line);
+  cx.only_keys(t, s.where, {"name", "sites", "boundary", "seeds", "bond", "site"});
+  s.name = t.get("name") ? cx.string(*t.get("name"), s.where + ".name") : "sweep" + std::to_string(index);
+  if (!t.get("sites")) cx.fail(line, s.where, "missing 'sites' (the lattice sizes L)");
+  const toml::node& sites = *t.get("sites");
+  s.sites = cx.int_values(sites, s.where + ".sites");
+  if (const toml::node* b = t.get("boundary")) {
+    std::vector<std::string> names;
+    if (b->is_array()) {
+      for (const auto& e : *b->as_array()) names.push_back(cx.choice(e, s.where + ".boundary", {"periodic", "open"}));
+      if (names.empty()) cx.fail(*b, s.where + ".boundary", "empty scan: no values");
+    } else {
+      names.push_back(cx.choice(*b, s.where + ".boundary", {"periodic", "open"}));
+    }
+    for (const auto& n : names) s.boundaries.push_back(n == "periodic" ? Boundary::Periodic : Boundary::Open);
+  } else {
+    s.boundaries.push_back(Boundary::Periodic);
+  }
+  for (std::int64_t L : s.sites) {
+    if (L < 2) cx.fail(sites, s.where + ".sites", "L = " + std::to_string(L) + " is below 2");
+    for (Boundary b : s.boundaries)
+      if (b == Boundary::Periodic && L % 2 != 0)
+        cx.fail(sites, s.where + ".sites",
+                "L = " + std::to_string(L) + " is odd; a periodic brick-wall needs even L");
+  }
+  if (!t.get("bond")) cx.fail(line, s.where, "missing [sweep.bond] (the two-site gate)");
+  s.bond = read_gate(cx, cx.table(*t.get("bond"), s.where + ".bond"), s.where + ".bond", true,
+                     static_cast<std::int64_t>(t.get("bond")->source().begin.line));
+  if (const toml::node* st = t.get("site"))
+    s.site = read_gate(cx, cx.table(*st, s.where + ".site"), s.where + ".site", false,
+                       static_cast<std::int64_t>(st->source().begin.line));
+  const bool drawn = s.bond.drawn() || s.site.drawn();
+  if (const toml::node* sd = t.get("seeds")) {
+    if (!drawn) cx.fail(*sd, s.where + ".seeds", "seeds given but no gate parameter is drawn ({draw = [lo, hi]})");
+    s.seeds = cx.int_values(*sd, s.where + ".seeds");
+    for (std::int64_t v : s.seeds)
+      if (v < 0) cx.fail(*sd, s.where + ".seeds", "seeds must be >= 0");
+  } else if (drawn) {
+    cx.fail(line, s.where, "a gate parameter is drawn but 'seeds' is missing");
+  }
+  return s;
+}
+
+}  // namespace
+
+bool GateSpec::drawn() const {
+  return std::any_of(params.begin(), params.end(), [](const ParamSpec& p) { return p.drawn; });
+}
+
+Config parse_config(const std::string& text, const std::string& source) {
+  Config c;
+  c.text = text;
+  c.source = source;
+  Ctx cx(source);
+  toml::table root;
+  try {
+    root = toml::parse(text, source);
+  } catch (const toml::parse_error& e) {
+    cx.fail(static_cast<std::int64_t>(e.source().begin.line), "", std::string("TOML syntax: ") +
+                                                                      std::string(e.description()));
+  }
+  cx.only_keys(root, "", {"title", "sweep", "spectrum", "bounds"});
+  if (const toml::node* t = root.get("title")) c.title = cx.string(*t, "title");
+
+  const toml::node* sw = root.get("sweep");
+  if (!sw) cx.fail(1, "sweep", "missing: add at least one [[sweep]] table");
+  if (!sw->is_array_of_tables()) cx.fail(*sw, "sweep", "must be an array of tables: write [[sweep]]");
+  const auto& arr = *sw->as_array();
+  if (arr.empty()) cx.fail(*sw, "sweep", "empty: add at least one [[sweep]] table");
+  std::set<std::string> names;
+  for (std::size_t i = 0; i < arr.size(); ++i) {
+    c.sweeps.push_back(read_sweep(cx, *arr[i].as_table(), i));
+    if (!names.insert(c.sweeps.back().name).second)
+      cx.fail(arr[i], "sweep[" + std::to_string(i) + "].name", "duplicate sweep name \"" + c.sweeps.back().name + "\"");
+  }
+
+  if (const toml::node* sp = root.get("spectrum")) {
+    const auto& t = cx.table(*sp, "spectrum");
+    cx.only_keys(t, "spectrum", {"method", "dense_max", "keep_all", "top", "bins", "bulk_limit"});
+    auto& S = c.spectrum;
+    if (const toml::node* m = t.get("method")) {
+      S.method = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense"});
+      S.method_line = static_cast<std::int64_t>(m->source().begin.line);
+    }
+    auto positive = [&](const char* key, std::int64_t& out) {
+      if (const toml::node* n = t.get(key)) {
+        out = cx.integer(*n, std::string("spectrum.") + key);
+        if (out < 1) cx.fail(*n, std::string("spectrum.") + key, "must be at least 1");
+      }
+    };
+    positive("dense_max", S.dense_max);
+    positive("keep_all", S.summary.keep_all);
+    positive("top", S.summary.top);
+    std::int64_t bins = S.summary.bins;
+    positive("bins", bins);
+    if (bins > 100000) cx.fail(*t.get("bins"), "spectrum.bins", "at most 100000 bins");
+    S.summary.bins = static_cast<int>(bins);
+    if (const toml::node* b = t.get("bulk_limit")) S.bulk_limit = cx.boolean(*b, "spectrum.bulk_limit");
+  }
+  // A forced method must apply to every point.
+  for (const auto& s : c.sweeps) {
+    const bool ti = !s.bond.drawn() && !s.site.drawn();
+    if (c.spectrum.method == "bloch") {
+      if (!ti)
+        cx.fail(c.spectrum.method_line, "spectrum.method",
+                "\"bloch\" needs translation-invariant gates, but " + s.where + " draws gate parameters");
+      for (Boundary b : s.boundaries)
+        if (b == Boundary::Open)
+          cx.fail(c.spectrum.method_line, "spectrum.method",
+                  "\"bloch\" needs a periodic boundary, but " + s.where + " has boundary \"open\"");
+    }
+  }
+
+  if (const toml::node* bd = root.get("bounds")) {
+    const auto& t = cx.table(*bd, "bounds");
+    cx.only_keys(t, "bounds", {"regions", "local_dims", "placement"});
+    auto& B = c.bounds;
+    if (const toml::node* r = t.get("regions")) {
+      B.regions = cx.int_values(*r, "bounds.regions");
+      for (auto v : B.regions)
+        if (v < 1) cx.fail(*r, "bounds.regions", "region size " + std::to_string(v) + " is below 1");
+    }
+    if (const toml::node* n = t.get("local_dims")) {
+      B.local_dims = cx.int_values(*n, "bounds.local_dims");
+      for (auto v : B.local_dims)
+        if (v < 2) cx.fail(*n, "bounds.local_dims", "local dimension N = " + std::to_string(v) + " is below 2");
+    }
+    if (const toml::node* p = t.get("placement")) B.placement = cx.choice(*p, "bounds.placement", {"bulk", "edge"});
+  }
+  return c;
+}
+
+Config load_config(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw ConfigError(path + ": cannot read the config file");
+  std::ostringstream ss;
+  ss << in.rdbuf();
+  return parse_config(ss.str(), path);
+}
+
+}  // namespace toral

@@ -1,0 +1,81 @@
+// The TOML run configuration: parsed strictly (unknown keys, wrong types and
+// empty scans are errors that name the key and its line).
+#pragma once
+#include <cstdint>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include "intmat.hpp"
+#include "model.hpp"
+#include "spectrum.hpp"
+
+namespace toral {
+
+// A located configuration error: "SOURCE:LINE: key.path: what is wrong".
+struct ConfigError : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+// One integer parameter of a gate family.
+struct ParamSpec {
+  std::string name;                  // "a", "b"
+  bool drawn = false;                // drawn per bond/site from [lo, hi]
+  std::vector<std::int64_t> values;  // scanned values (size 1 when fixed)
+  std::int64_t lo = 0, hi = 0;       // draw range (inclusive)
+  std::int64_t line = 0;
+};
+
+// A gate: an explicit matrix or a family with parameters.
+struct GateSpec {
+  bool present = false;
+  bool symplectic = false;  // bond gates: 4x4 on (q_a,p_a,q_b,p_b) instead of 2x2 on (q_a,q_b)
+  bool explicit_matrix = false;
+  Mat2 m2;
+  Mat4 m4;
+  std::string family;
+  std::vector<ParamSpec> params;  // family order
+  std::string where;              // "sweep[0].bond"
+  bool drawn() const;
+};
+
+struct SweepSpec {
+  std::string name;
+  std::vector<std::int64_t> sites;
+  std::vector<Boundary> boundaries;
+  GateSpec bond;
+  GateSpec site;  // present == false: no one-site layer
+  std::vector<std::int64_t> seeds;  // only when something is drawn
+  std::string where;
+};
+
+struct SpectrumSpec {
+  std::string method = "auto";  // auto | bloch | dense
+  std::int64_t dense_max = 4096;  // largest matrix dimension for dense
+  SummaryOptions summary;
+  bool bulk_limit = true;
+  std::int64_t method_line = 0;
+};
+
+struct BoundsSpec {
+  std::vector<std::int64_t> regions = {1, 2, 4, 8};
+  std::vector<std::int64_t> local_dims = {2, 3, 5, 7};
+  std::string placement = "bulk";  // bulk (two cuts) | edge (open chains: one cut)
+};
+
+struct Config {
+  std::string text;    // the TOML text as given
+  std::string source;  // a path, or "embedded default"
+  std::string title;
+  std::vector<SweepSpec> sweeps;
+  SpectrumSpec spectrum;
+  BoundsSpec bounds;
+};
+
+// Parses and validates; throws ConfigError with a one-line located message.
+Config parse_config(const std::string& text, const std::string& source);
+// Reads a file (ConfigError when it cannot be read) and parses it.
+Config load_config(const std::string& path);
+
+}  // namespace toral

@@ -1,0 +1,151 @@
+// toral: command-line entry point. Subcommands: run, check, point.
+#include <mpi.h>
+
+#include <CLI/CLI.hpp>
+#include <cstdio>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+
+#include "compute.hpp"
+#include "config.hpp"
+#include "default_config.hpp"
+#include "report.hpp"
+#include "result_file.hpp"
+#include "run.hpp"
+#include "sweep.hpp"
+
+extern "C" void openblas_set_num_threads(int) __attribute__((weak));
+
+namespace {
+
+constexpr int kExitOk = 0, kExitFailure = 1, kExitBadInput = 2;
+
+// Reads the config on rank 0 and shares its text, so every rank parses the
+// same bytes. An empty path means the embedded default sweep.
+toral::Config load_everywhere(MPI_Comm comm, const std::string& path) {
+  int rank = 0;
+  MPI_Comm_rank(comm, &rank);
+  std::string text, error;
+  if (rank == 0) {
+    if (path.empty()) {
+      text = toral::kDefaultConfigText;
+    } else {
+      std::ifstream in(path, std::ios::binary);
+      if (!in) {
+        error = path + ": cannot read the config file";
+      } else {
+        std::ostringstream ss;
+        ss << in.rdbuf();
+        text = ss.str();
+      }
+    }
+  }
+  auto share = [&](std::string& s) {
+    long long n = static_cast<long long>(s.size());
+    MPI_Bcast(&n, 1, MPI_LONG_LONG, 0, comm);
+    s.resize(static_cast<std::size_t>(n));
+    if (n) MPI_Bcast(s.data(), static_cast<int>(n), MPI_CHAR, 0, comm);
+  };
+  share(error);
+  if (!error.empty()) throw toral::ConfigError(error);
+  share(text);
+  return toral::parse_config(text, path.empty() ? "embedded default" : path);
+}
+
+void write_matrix_market(const std::string& path, const toral::SparseInt& m) {
+  std::ofstream out(path);
+  if (!out) throw std::runtime_error(path + ": cannot write the matrix file");
+  out << "%%MatrixMarket matrix coordinate integer general\n";
+  out << "% toral one-period matrix, coordinates (q_0..q_{L-1}, p_0..p_{L-1})\n";
+  out << m.n << ' ' << m.n << ' ' << m.nnz() << '\n';
+  for (std::int64_t i = 0; i < m.n; ++i)
+    for (std::int64_t k = m.rowptr[i]; k < m.rowptr[i + 1]; ++k)
+      out << i + 1 << ' ' << m.col[k] + 1 << ' ' << m.val[k] << '\n';
+  if (!out) throw std::runtime_error(path + ": write failed");
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  MPI_Init(&argc, &argv);
+  if (openblas_set_num_threads) openblas_set_num_threads(1);  // one BLAS thread per rank
+  int rank = 0;
+  MPI_Comm_rank(MPI_COMM_WORLD, &rank);
+  const MPI_Comm comm = MPI_COMM_WORLD;
+
+  CLI::App app{"toral: Lyapunov spectra and entanglement-growth bounds of integer symplectic lattice maps"};
+  app.set_version_flag("--version", std::string("toral ") + TORAL_VERSION);
+  app.require_subcommand(1);
+
+  std::string config_path, output, matrix_path;
+  bool overwrite = false, quiet = false, json = false, block = false;
+  long long index = 0;
+
+  auto* run = app.add_subcommand("run", "Run a sweep (the embedded default when no CONFIG is given) into an HDF5 file");
+  run->add_option("config", config_path, "TOML sweep configuration");
+  run->add_option("-o,--output", output, "HDF5 result file to create")->required();
+  run->add_flag("--overwrite", overwrite, "Replace an existing result file (only once the new one is complete)");
+  run->add_flag("-q,--quiet", quiet, "No progress lines");
+
+  auto* check = app.add_subcommand("check", "Validate a configuration, count its points, estimate the cost");
+  check->add_option("config", config_path, "TOML sweep configuration")->required();
+
+  auto* point = app.add_subcommand("point", "Compute one point and print it");
+  point->add_option("config", config_path, "TOML sweep configuration ('-' for the embedded default)")->required();
+  point->add_option("-i,--index", index, "Global point index (0-based, in sweep order)");
+  point->add_flag("--json", json, "JSON keyed by the HDF5 dataset paths");
+  point->add_option("--matrix", matrix_path, "Also write the point's integer matrix in Matrix Market format");
+  point->add_flag("--position-block", block, "With --matrix: write the L x L block M (position-class circuits)");
+
+  int code = kExitOk;
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    const int c = rank == 0 ? app.exit(e) : e.get_exit_code();
+    MPI_Finalize();
+    return c == 0 ? kExitOk : kExitBadInput;
+  }
+
+  try {
+    if (*run) {
+      const toral::Config cfg = load_everywhere(comm, config_path);
+      if (!overwrite && toral::output_exists(output))
+        throw toral::ConfigError(output + ": output file exists (pass --overwrite to replace it)");
+      toral::RunOptions o{output, overwrite, quiet};
+      const auto outcome = toral::run_sweep(comm, cfg, o);
+      if (rank == 0 && outcome.failed > 0)
+        std::fprintf(stderr, "toral: warning: %lld of %lld points failed; see /points/status and /points/message\n",
+                     static_cast<long long>(outcome.failed), static_cast<long long>(outcome.points));
+    } else if (*check) {
+      const toral::Config cfg = load_everywhere(comm, config_path);
+      if (rank == 0) toral::print_check(std::cout, cfg);
+    } else if (*point) {
+      const toral::Config cfg = load_everywhere(comm, config_path == "-" ? "" : config_path);
+      const auto n = toral::point_count(cfg);
+      if (index < 0 || index >= n)
+        throw toral::ConfigError("--index " + std::to_string(index) + ": out of range, the config has " +
+                                 std::to_string(n) + " points (0.." + std::to_string(n - 1) + ")");
+      if (rank == 0) {
+        const auto points = toral::expand(cfg);
+        const auto& p = points[static_cast<std::size_t>(index)];
+        const toral::ParamTable t = toral::param_table(cfg);
+        if (!matrix_path.empty()) {
+          const toral::Circuit c = toral::build_circuit(cfg, p);
+          if (block && !c.position_class())
+            throw toral::ConfigError("--position-block: point " + std::to_string(index) + " is not position-class");
+          write_matrix_market(matrix_path, block ? toral::assemble_position_block(c) : toral::assemble_period(c));
+        }
+        toral::print_point(std::cout, cfg, t, p, toral::compute_point(cfg, t, p), json);
+      }
+    }
+  } catch (const toral::ConfigError& e) {
+    if (rank == 0) std::fprintf(stderr, "toral: error: %s\n", e.what());
+    code = kExitBadInput;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "toral: error (rank %d): %s\n", rank, e.what());
+    code = kExitFailure;
+  }
+  MPI_Finalize();
+  return code;
+}

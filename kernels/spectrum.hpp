@@ -1,0 +1,64 @@
+// Lyapunov spectra of one period S and the per-point chaos summary.
+#pragma once
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "model.hpp"
+
+namespace toral {
+
+enum class Method { None = 0, Bloch = 1, Dense = 2, Krylov = 3 };
+const char* method_name(Method m);
+
+// A full Lyapunov spectrum of S: all 2L exponents ln|mu|, sorted descending.
+struct Spectrum {
+  Method method = Method::None;
+  std::vector<double> exponents;  // size 2L, descending
+  // Accuracy estimates:
+  double pairing_defect = 0.0;  // max_i |lambda_i + lambda_{2L+1-i}|
+  double sum_defect = 0.0;      // |sum_i lambda_i| of what was diagonalised
+  double error_bound = 0.0;     // estimated absolute error of one exponent
+};
+
+// Fills pairing_defect and sum_defect from the (sorted) exponents.
+void measure_pairing(Spectrum& s);
+
+// Per-point quantities derived from a full spectrum.
+struct ChaosSummary {
+  double lambda_max = 0.0;          // largest exponent
+  double ks_rate = 0.0;             // h = sum of positive exponents, per period
+  double ks_density = 0.0;          // h / L
+  std::int64_t unstable_count = 0;  // number of exponents > zero_tol
+  std::vector<double> kept;         // all 2L if 2L <= keep_all, else the top `top`
+  std::vector<double> hist_counts;  // fraction of the 2L exponents per bin
+  std::vector<double> hist_edges;   // bins + 1 edges on [-lambda_max, lambda_max]
+};
+
+struct SummaryOptions {
+  std::int64_t keep_all = 1024;  // store every exponent when 2L <= keep_all
+  std::int64_t top = 32;         // else the top this many
+  int bins = 40;                 // histogram bins
+  double zero_tol = 1e-9;        // |lambda| below this counts as zero
+};
+
+ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& o);
+
+// Histogram of `values` on `bins` equal bins over [lo, hi] (values outside are
+// clamped into the end bins); counts are fractions of values.size().
+void histogram(const std::vector<double>& values, double lo, double hi, int bins,
+               std::vector<double>& counts, std::vector<double>& edges);
+
+// Dense LAPACK spectrum. Position-class circuits diagonalise only the L x L
+// block M; others the 2L x 2L matrix S. Throws ModelError for bad circuits
+// and std::runtime_error when LAPACK fails.
+Spectrum dense_spectrum(const Circuit& c);
+
+// Eigenvalues of a dense real row-major n x n matrix with LAPACK dgeevx;
+// also returns an error bound per eigenvalue (eps * ||A|| / rcond).
+struct DenseEig {
+  std::vector<double> re, im, err;
+};
+DenseEig dense_eigenvalues(std::vector<double> a, std::int64_t n);
+
+}  // namespace toral
