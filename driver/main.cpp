@@ -110,8 +110,7 @@ int main(int argc, char** argv) {
   try {
     if (*run) {
       const toral::Config cfg = load_everywhere(comm, config_path);
-      if (!overwrite && toral::output_exists(output))
-        throw toral::ConfigError(output + ": output file exists (pass --overwrite to replace it)");
+      toral::check_output_target(comm, output, overwrite);  // before any computation
       toral::RunOptions o{output, overwrite, quiet};
       const auto outcome = toral::run_sweep(comm, cfg, o);
       if (rank == 0 && outcome.failed > 0)
@@ -140,6 +139,9 @@ int main(int argc, char** argv) {
       }
     }
   } catch (const toral::ConfigError& e) {
+    if (rank == 0) std::fprintf(stderr, "toral: error: %s\n", e.what());
+    code = kExitBadInput;
+  } catch (const toral::ResultFileError& e) {
     if (rank == 0) std::fprintf(stderr, "toral: error: %s\n", e.what());
     code = kExitBadInput;
   } catch (const std::exception& e) {

@@ -3,7 +3,6 @@
 #include <chrono>
 #include <cmath>
 #include <cstdio>
-#include <ctime>
 
 #include "compute.hpp"
 #include "report.hpp"
@@ -13,13 +12,6 @@
 namespace toral {
 
 namespace {
-
-std::string utc_now() {
-  const std::time_t t = std::time(nullptr);
-  char buf[32];
-  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&t));
-  return buf;
-}
 
 // A global counter of finished points in an MPI window on rank 0, so rank 0
 // can report the whole run's progress while every rank works on its share.
@@ -118,7 +110,7 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
   meta.toral_version = TORAL_VERSION;
   meta.config_text = c.text;
   meta.config_source = c.source;
-  meta.created = utc_now();
+  meta.created = iso8601_utc_now();
   meta.ranks = size;
   for (const auto& s : c.sweeps) meta.sweep_names.push_back(s.name);
   write_results(comm, o.output, o.overwrite, axes, meta, total, local);

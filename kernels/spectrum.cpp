@@ -51,8 +51,11 @@ ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& 
   const auto& e = s.exponents;
   if (e.empty()) throw std::invalid_argument("summarize: empty spectrum");
   r.lambda_max = e.front();
+  // An exponent counts as positive only above its own error bound (Jordan
+  // blocks on the unit circle give exponents of order sqrt(eps)).
+  const double zero = std::max(o.zero_tol, s.error_bound);
   for (double x : e)
-    if (x > o.zero_tol) {
+    if (x > zero) {
       r.ks_rate += x;
       ++r.unstable_count;
     }

@@ -39,7 +39,7 @@ struct SummaryOptions {
   std::int64_t keep_all = 1024;  // store every exponent when 2L <= keep_all
   std::int64_t top = 32;         // else the top this many
   int bins = 40;                 // histogram bins
-  double zero_tol = 1e-9;        // |lambda| below this counts as zero
+  double zero_tol = 1e-9;  // exponents up to max(zero_tol, error_bound) count as zero
 };
 
 ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& o);

@@ -1,0 +1,12 @@
+#!/usr/bin/env bash
+# Set up, build, and run the embedded default sweep on 2 MPI ranks:
+# writes out/default.h5 and out/default_maps.png and prints summary tables.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/bootstrap.sh
+bash scripts/build.sh
+source scripts/env.sh
+mkdir -p out
+mpiexec --oversubscribe -n 2 build/toral run -o out/default.h5 --overwrite
+"$TORAL_PYTHON" analysis/toral_maps.py out/default.h5 --sweep shear_grid -o out/default_maps.png --table
+echo "wrote out/default.h5 and out/default_maps.png"
