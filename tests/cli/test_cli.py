@@ -231,3 +231,26 @@ def test_slurm_template_runs_a_sweep_with_a_stand_in_srun(tmp_path, toral):
     assert "24 points" in p.stdout
     with h5py.File(out, "r") as f:
         assert f["chaos/lambda_max"].shape == (24,)
+
+
+def test_examples_and_readme_config_are_valid(tmp_path, run_toral):
+    # Documentation must stay true: every example and the README's config block pass `check`.
+    from conftest import ROOT
+    import re
+
+    for ex in sorted((ROOT / "examples").glob("*.toml")):
+        p = run_toral("check", ex)
+        assert p.returncode == 0, (ex, p.stderr)
+    block = re.search(r"```toml\n(.*?)```", (ROOT / "README.md").read_text(), re.S).group(1)
+    p = run_toral("check", write(tmp_path, block, "readme.toml"))
+    assert p.returncode == 0, p.stderr
+
+
+def test_embedded_default_equals_examples_default(tmp_path, run_toral):
+    # `point -` uses the embedded text; it must be examples/default.toml.
+    from conftest import ROOT
+
+    a = json.loads(run_toral("point", "-", "--index", 60, "--json", check=True).stdout)
+    b = json.loads(run_toral("point", ROOT / "examples" / "default.toml", "--index", 60, "--json", check=True).stdout)
+    a.pop("/points/wall_time"), b.pop("/points/wall_time")
+    assert a == b
