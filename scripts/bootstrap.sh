@@ -10,6 +10,7 @@ PACKAGES=(
   libhdf5-openmpi-dev hdf5-tools
   liblapacke-dev libopenblas-dev
   libgsl-dev librandom123-dev
+  libflint-dev libflint-arb-dev libm4ri-dev
   libtomlplusplus-dev libcli11-dev
   googletest libgtest-dev
   python3 python3-h5py python3-numpy python3-scipy python3-matplotlib python3-pytest
