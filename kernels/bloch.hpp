@@ -18,7 +18,8 @@ namespace toral {
 // The Bloch matrix at momentum k (row-major, dim x dim, dim = 2 or 4).
 std::vector<std::complex<double>> bloch_matrix(const Circuit& c, double k, int& dim);
 
-// Exponents of S contributed by momentum k (2 * dim values, the +- pairs).
+// The 4 exponents of S contributed by momentum k, sorted descending, +- paired.
+// (Checks translation invariance, O(L), on every call.)
 std::vector<double> bloch_exponents(const Circuit& c, double k);
 
 // Full finite-ring spectrum of a translation-invariant periodic circuit.

@@ -32,13 +32,22 @@ void measure_pairing(Spectrum& s) {
 }
 
 void histogram(const std::vector<double>& values, double lo, double hi, int bins,
-               std::vector<double>& counts, std::vector<double>& edges) {
+               std::vector<double>& counts, std::vector<double>& edges, double zero) {
   counts.assign(static_cast<std::size_t>(bins), 0.0);
   edges.resize(static_cast<std::size_t>(bins) + 1);
   for (int j = 0; j <= bins; ++j) edges[static_cast<std::size_t>(j)] = lo + (hi - lo) * j / bins;
   if (values.empty() || bins <= 0) return;
   const double w = (hi - lo) / bins;
+  const double z = (0.0 - lo) / w;  // position of 0 in bin units
+  const bool zero_on_edge = z > 0 && z < bins && std::fabs(z - std::round(z)) < 1e-12;
   for (double v : values) {
+    if (zero > 0 && std::fabs(v) <= zero && zero_on_edge) {
+      const auto j = static_cast<std::size_t>(std::lround(z));
+      counts[j - 1] += 0.5;
+      counts[j] += 0.5;
+      continue;
+    }
+    if (zero > 0 && std::fabs(v) <= zero) v = 0.0;
     long j = static_cast<long>(std::floor((v - lo) / w));
     j = std::clamp(j, 0L, static_cast<long>(bins) - 1);
     counts[static_cast<std::size_t>(j)] += 1.0;
@@ -64,7 +73,7 @@ ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& 
   const std::int64_t keep = n <= o.keep_all ? n : std::min<std::int64_t>(o.top, n);
   r.kept.assign(e.begin(), e.begin() + keep);
   const double span = r.lambda_max > o.zero_tol ? r.lambda_max : 1.0;
-  histogram(e, -span, span, o.bins, r.hist_counts, r.hist_edges);
+  histogram(e, -span, span, o.bins, r.hist_counts, r.hist_edges, zero);
   return r;
 }
 

@@ -45,9 +45,12 @@ struct SummaryOptions {
 ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& o);
 
 // Histogram of `values` on `bins` equal bins over [lo, hi] (values outside are
-// clamped into the end bins); counts are fractions of values.size().
+// clamped into the end bins); counts are fractions of values.size(). Values
+// with |v| <= zero are exact zeros blurred by rounding: when 0 is a bin edge
+// they count half in each neighbouring bin, so their noisy sign cannot skew
+// the histogram.
 void histogram(const std::vector<double>& values, double lo, double hi, int bins,
-               std::vector<double>& counts, std::vector<double>& edges);
+               std::vector<double>& counts, std::vector<double>& edges, double zero = 0.0);
 
 // Dense LAPACK spectrum. Position-class circuits diagonalise only the L x L
 // block M; others the 2L x 2L matrix S. Throws ModelError for bad circuits

@@ -334,3 +334,17 @@ TEST(Draws, CounterBasedAndUniform) {
             draw_uniform(2, 2, static_cast<std::uint64_t>(i), 0, 1, 0, 1 << 30);
   EXPECT_LT(same, 5);
 }
+
+TEST(Summary, HistogramSplitsNoisyZerosEvenly) {
+  // Exponents that are zero up to rounding carry no sign; with 0 on a bin
+  // edge each counts half on either side (common practice for symmetric data).
+  std::vector<double> counts, edges;
+  histogram({1.0, -1.0, 1e-13, -2e-13, 3e-14, 0.0}, -1.0, 1.0, 4, counts, edges, 1e-12);
+  ASSERT_EQ(counts.size(), 4u);
+  EXPECT_DOUBLE_EQ(counts[1], counts[2]);
+  EXPECT_DOUBLE_EQ(counts[1] + counts[2], 4.0 / 6.0);
+  EXPECT_DOUBLE_EQ(counts[0], 1.0 / 6.0);
+  EXPECT_DOUBLE_EQ(counts[3], 1.0 / 6.0);
+  histogram({1e-13, -1e-13}, -1.0, 1.0, 3, counts, edges, 1e-12);  // 0 mid-bin
+  EXPECT_DOUBLE_EQ(counts[1], 1.0);
+}

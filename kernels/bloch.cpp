@@ -1,0 +1,644 @@
+// Bloch decomposition of translation-invariant brick-wall circuits.
+//
+// Derivation of the one-period Bloch matrix M(z) (checked in
+// tests/test_bloch.cpp against the dense matrix of assemble_period):
+//
+// Cell j holds x_j = site 2j and y_j = site 2j+1; a plane wave has
+// X_j = z^j X, Y_j = z^j Y with X = (q_x, p_x), Y = (q_y, p_y) and z = e^{ik}.
+//  * Even bond 2j acts on (a, b) = (x_j, y_j), so on (X, Y) it is G itself.
+//  * Odd bond 2j+1 acts on (a, b) = (y_j, x_{j+1}). With G = [[G11, G12],
+//    [G21, G22]] in 2x2 blocks on (a, b):
+//      Y'_j     = G11 Y_j + G12 X_{j+1}  ->  Y' = G11 Y + z G12 X
+//      X'_{j+1} = G21 Y_j + G22 X_{j+1}  ->  X' = G21 Y / z + G22 X
+//    so on (X, Y) the odd layer is [[G22, G21/z], [z G12, G11]].
+//    For a position gate A on (q_a, q_b) the same step gives, on (q_x, q_y),
+//    [[A11, A10/z], [z A01, A00]].
+//  * The one-site layer is blockdiag(g, g).
+// M(z) = Site * Odd(z) * Even. For L = 2 the odd bond is (1, 0), which is the
+// z = 1 case of the same formula.
+//
+// S is block-diagonalised by the Fourier transform over cells, so its
+// spectrum is the union over the L/2 ring momenta of the spectra of M(z).
+// Position class: S = M (+) M^-T; the momentum block at z has the Bloch
+// matrix M(conj z)^-T = conj(M(z))^-T, whose eigenvalue moduli are
+// 1/|mu_j(z)|, so each k gives {ln|mu_j|} u {-ln|mu_j|}: 4 exponents. In the
+// general case M(z) is 4x4 and gives the 4 exponents directly. The gates are
+// real, so M(conj z) = conj(M(z)) and the exponents at k and -k coincide.
+#include "bloch.hpp"
+
+#include <complex>
+#define lapack_complex_float std::complex<float>
+#define lapack_complex_double std::complex<double>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_integration.h>
+#include <gsl/gsl_min.h>
+#include <lapacke.h>
+
+#include <algorithm>
+#include <cmath>
+#include <exception>
+#include <functional>
+#include <limits>
+#include <memory>
+#include <numbers>
+#include <stdexcept>
+#include <string>
+#include <tuple>
+#include <utility>
+#include <vector>
+
+namespace toral {
+namespace {
+
+using cd = std::complex<double>;
+constexpr double kPi = std::numbers::pi;
+constexpr double kEps = std::numeric_limits<double>::epsilon();
+
+// The gates of one unit cell, taken from a translation-invariant circuit.
+struct CellGates {
+  bool position = false;  // position class: 2x2 M(z) on (q_x, q_y)
+  Mat2 A;                 // position gate (position class only)
+  Mat4 G;                 // bond gate on (q_a, p_a, q_b, p_b)
+  bool has_site = false;
+  Mat2 g;  // one-site gate
+  int dim() const { return position ? 2 : 4; }
+};
+
+// Checks what the Bloch decomposition needs and extracts the cell gates.
+// Only bond 0 and site 0 are validated in full: translation invariance makes
+// the rest identical, and this keeps the check O(L) with a tiny constant
+// (Circuit::validate would run L exact symplectic checks).
+CellGates extract_gates(const Circuit& c, const std::string& who) {
+  if (c.L < 2) throw ModelError(who + ": L = " + std::to_string(c.L) + ", needs at least 2 sites");
+  if (static_cast<std::int64_t>(c.bonds.size()) != c.bond_count())
+    throw ModelError(who + ": " + std::to_string(c.bonds.size()) + " bond gates for " +
+                     std::to_string(c.bond_count()) + " bonds");
+  if (!c.sites.empty() && static_cast<std::int64_t>(c.sites.size()) != c.L)
+    throw ModelError(who + ": " + std::to_string(c.sites.size()) +
+                     " site gates for L = " + std::to_string(c.L));
+  if (!c.translation_invariant()) {
+    std::string what = "circuit";
+    for (std::size_t b = 1; b < c.bonds.size(); ++b)
+      if (!(c.bonds[b] == c.bonds[0])) {
+        what = "bond " + std::to_string(b) + " differs from bond 0";
+        break;
+      }
+    if (what == "circuit")
+      for (std::size_t i = 1; i < c.sites.size(); ++i)
+        if (c.sites[i] != c.sites[0]) {
+          what = "site " + std::to_string(i) + " differs from site 0";
+          break;
+        }
+    throw ModelError(who + ": circuit is not translation invariant (" + what +
+                     "); the Bloch decomposition needs the same gate on every bond and site");
+  }
+  CellGates cg;
+  const BondGate& b0 = c.bonds[0];
+  if (b0.kind == BondKind::Position) {
+    validate_position_gate(b0.A, "bond 0");
+    if (!(embed_position_gate(b0.A) == b0.G))
+      throw ModelError("bond 0: position gate " + to_string(b0.A) +
+                       " does not match its 4x4 embedding " + to_string(b0.G));
+  } else {
+    validate_symplectic_gate(b0.G, "bond 0");
+  }
+  cg.G = b0.G;
+  cg.A = b0.A;
+  cg.has_site = c.has_site_layer();
+  if (cg.has_site) {
+    validate_site_gate(c.sites[0], "site 0");
+    cg.g = c.sites[0];
+  }
+  cg.position = (b0.kind == BondKind::Position) && !cg.has_site;
+  return cg;
+}
+
+// M(z), row-major dim x dim, into m (size >= 16).
+void build_matrix(const CellGates& cg, cd z, cd* m) {
+  const cd zi = 1.0 / z;
+  if (cg.position) {
+    const Mat2& A = cg.A;
+    const cd O[2][2] = {{double(A(1, 1)), double(A(1, 0)) * zi},
+                        {z * double(A(0, 1)), double(A(0, 0))}};
+    for (int i = 0; i < 2; ++i)
+      for (int j = 0; j < 2; ++j)
+        m[i * 2 + j] = O[i][0] * double(A(0, j)) + O[i][1] * double(A(1, j));
+    return;
+  }
+  const Mat4& G = cg.G;
+  cd O[4][4];
+  for (int i = 0; i < 2; ++i)
+    for (int j = 0; j < 2; ++j) {
+      O[i][j] = double(G(2 + i, 2 + j));       // G22
+      O[i][2 + j] = double(G(2 + i, j)) * zi;  // G21 / z
+      O[2 + i][j] = z * double(G(i, 2 + j));   // z G12
+      O[2 + i][2 + j] = double(G(i, j));       // G11
+    }
+  cd T[4][4];
+  for (int i = 0; i < 4; ++i)
+    for (int j = 0; j < 4; ++j) {
+      cd s = 0.0;
+      for (int l = 0; l < 4; ++l) s += O[i][l] * double(G(l, j));
+      T[i][j] = s;
+    }
+  if (!cg.has_site) {
+    for (int i = 0; i < 4; ++i)
+      for (int j = 0; j < 4; ++j) m[i * 4 + j] = T[i][j];
+    return;
+  }
+  // blockdiag(g, g) * T
+  for (int blk = 0; blk < 2; ++blk)
+    for (int i = 0; i < 2; ++i)
+      for (int j = 0; j < 4; ++j)
+        m[(2 * blk + i) * 4 + j] =
+            double(cg.g(i, 0)) * T[2 * blk][j] + double(cg.g(i, 1)) * T[2 * blk + 1][j];
+}
+
+// Eigenvalues of a small complex matrix with LAPACK zgeevx (balanced). With
+// `conditions` it also computes the reciprocal eigenvalue condition numbers
+// and turns them into error bounds on ln|mu|. Workspace is allocated once.
+class SmallEig {
+ public:
+  SmallEig(int n, bool conditions) : n_(n), cond_(conditions) {
+    a_.resize(n * n);
+    w_.resize(n);
+    vl_.resize(n * n);
+    vr_.resize(n * n);
+    scale_.resize(n);
+    rconde_.resize(n);
+    rcondv_.resize(n);
+    rwork_.resize(2 * n);
+    cd wq;
+    lapack_int ilo, ihi;
+    double abnrm;
+    const lapack_int info =
+        LAPACKE_zgeevx_work(LAPACK_COL_MAJOR, 'B', jv(), jv(), sense(), n_, a_.data(), n_,
+                            w_.data(), vl_.data(), n_, vr_.data(), n_, &ilo, &ihi, scale_.data(),
+                            &abnrm, rconde_.data(), rcondv_.data(), &wq, -1, rwork_.data());
+    if (info != 0)
+      throw std::runtime_error("zgeevx workspace query failed, info = " + std::to_string(info));
+    work_.resize(static_cast<std::size_t>(std::max(1.0, wq.real())) + 2 * n);
+    if (cond_) {
+      cd sq[16];
+      double sv[4];
+      svd_rwork_.resize(5 * n);
+      const lapack_int i2 = LAPACKE_zgesvd_work(LAPACK_COL_MAJOR, 'N', 'N', n_, n_, sq, n_, sv,
+                                                nullptr, 1, nullptr, 1, &wq, -1, svd_rwork_.data());
+      if (i2 != 0)
+        throw std::runtime_error("zgesvd workspace query failed, info = " + std::to_string(i2));
+      svd_work_.resize(static_cast<std::size_t>(std::max(1.0, wq.real())) + 2 * n);
+    }
+  }
+
+  // mat is row-major n x n. Fills lam[j] = ln|mu_j| and, in condition mode,
+  // err[j] = estimated absolute error of lam[j].
+  void solve(const cd* mat, double* lam, double* err) {
+    // Column-major copy of mat (LAPACKE's row-major path would allocate).
+    for (int i = 0; i < n_; ++i)
+      for (int j = 0; j < n_; ++j) a_[j * n_ + i] = mat[i * n_ + j];
+    lapack_int ilo, ihi;
+    double abnrm = 0.0;
+    const lapack_int info = LAPACKE_zgeevx_work(
+        LAPACK_COL_MAJOR, 'B', jv(), jv(), sense(), n_, a_.data(), n_, w_.data(), vl_.data(), n_,
+        vr_.data(), n_, &ilo, &ihi, scale_.data(), &abnrm, rconde_.data(), rcondv_.data(),
+        work_.data(), static_cast<lapack_int>(work_.size()), rwork_.data());
+    if (info != 0)
+      throw std::runtime_error("zgeevx failed on a " + std::to_string(n_) + "x" +
+                               std::to_string(n_) +
+                               " Bloch matrix, info = " + std::to_string(info));
+    for (int j = 0; j < n_; ++j) lam[j] = std::log(std::abs(w_[j]));
+    if (!cond_) return;
+    // Error of each eigenvalue, from two standard estimates:
+    //  * LAPACK Users' Guide (3rd ed.) sec. 4.8.1.3: |mu - mu~| <~ eps ||A|| / rconde,
+    //    first order, so it breaks down for (nearly) defective eigenvalues;
+    //  * the Ostrowski-Elsner theorem, valid for any matrix:
+    //    |mu - mu~| <= (||A|| + ||A~||)^(1-1/n) ||E||^(1/n), for a backward
+    //    error ||E|| <= n eps ||A||_2 (and ||A||_2 <= sqrt(n) ||A||_1). An
+    //    eigenvalue whose largest Jordan block has size p moves like
+    //    ||E||^(1/p), so we use the same form r_p with exponent 1/p, where p is
+    //    the numerical Jordan index of the cluster of computed eigenvalues
+    //    around it (smallest p with rank (T - mu I)^p = n - cluster size, T the
+    //    Schur form zgeevx leaves in A). p = n is the plain Elsner bound.
+    const double dn = n_;
+    const double norm2 = std::sqrt(dn) * abnrm;
+    double rad[5] = {0, 0, 0, 0, 0};
+    for (int p = 1; p <= n_; ++p)
+      rad[p] = std::pow(2.0 * norm2, 1.0 - 1.0 / p) * std::pow(dn * kEps * norm2, 1.0 / p);
+    int jordan[4] = {0, 0, 0, 0};  // Jordan index per eigenvalue, 0 = not yet known
+    for (int j = 0; j < n_; ++j) {
+      const double r = std::abs(w_[j]);
+      const double first =
+          rconde_[j] > 0.0 ? kEps * abnrm / rconde_[j] : std::numeric_limits<double>::infinity();
+      // Cluster: the smallest m such that at most m computed eigenvalues lie
+      // within 2 r_m of this one.
+      int members[4], count = 0;
+      for (int m = 1; m <= n_; ++m) {
+        count = 0;
+        for (int i = 0; i < n_; ++i)
+          if (std::abs(w_[i] - w_[j]) <= 2.0 * rad[m]) members[count++] = i;
+        if (count <= m) break;
+      }
+      double dmu = first;
+      if (count == 2) {
+        dmu = std::min(first, rad[2]);  // Jordan index 1 or 2: r_2 either way
+      } else if (count > 2) {
+        if (jordan[j] == 0) {
+          cd mean = 0.0;
+          for (int i = 0; i < count; ++i) mean += w_[members[i]];
+          const int p = jordan_index(mean / double(count), count);
+          for (int i = 0; i < count; ++i) jordan[members[i]] = p;
+        }
+        dmu = std::min(first, rad[std::max(2, jordan[j])]);
+      }
+      err[j] = dmu < r ? -std::log1p(-dmu / r) : std::numeric_limits<double>::infinity();
+    }
+  }
+
+ private:
+  // Numerical Jordan index of the eigenvalue cluster of size `count` around
+  // mu, from the singular values of powers of N = T - mu I (T in a_).
+  int jordan_index(cd mu, int count) {
+    const int n = n_;
+    double tnorm = 0.0;
+    for (int i = 0; i < n * n; ++i) tnorm += std::norm(a_[i]);
+    tnorm = std::max(1.0, std::sqrt(tnorm));
+    cd N[16], P[16], Q[16];
+    for (int i = 0; i < n * n; ++i) N[i] = a_[i];
+    for (int i = 0; i < n; ++i) N[i * n + i] -= mu;
+    std::copy(N, N + n * n, P);
+    double scale = tnorm;
+    for (int p = 1; p < count; ++p) {
+      std::copy(P, P + n * n, Q);
+      double sv[4];
+      const lapack_int info = LAPACKE_zgesvd_work(
+          LAPACK_COL_MAJOR, 'N', 'N', n, n, Q, n, sv, nullptr, 1, nullptr, 1, svd_work_.data(),
+          static_cast<lapack_int>(svd_work_.size()), svd_rwork_.data());
+      if (info != 0) return count;  // no rank information: assume the worst
+      int small = 0;
+      for (int i = 0; i < n; ++i)
+        if (sv[i] <= std::sqrt(kEps) * scale) ++small;
+      if (small >= count) return p;
+      // P <- P * N (column-major)
+      for (int c = 0; c < n; ++c)
+        for (int r = 0; r < n; ++r) {
+          cd acc = 0.0;
+          for (int l = 0; l < n; ++l) acc += P[l * n + r] * N[c * n + l];
+          Q[c * n + r] = acc;
+        }
+      std::copy(Q, Q + n * n, P);
+      scale *= tnorm;
+    }
+    return count;
+  }
+
+  char jv() const { return cond_ ? 'V' : 'N'; }
+  char sense() const { return cond_ ? 'E' : 'N'; }
+  int n_;
+  bool cond_;
+  std::vector<cd> a_, w_, vl_, vr_, work_;
+  std::vector<double> scale_, rconde_, rcondv_, rwork_;
+  std::vector<cd> svd_work_;
+  std::vector<double> svd_rwork_;
+};
+
+// The 4 exponents of S at momentum k, sorted descending, plus (condition mode)
+// an error estimate for them: the largest per-eigenvalue bound, or half the
+// observed violation of the exact +- pairing at this k, whichever is larger.
+struct KExponents {
+  double lam[4];
+  double err = 0.0;
+  double msum = 0.0;  // sum of ln|mu| over the eigenvalues of M(z) itself
+};
+
+class BlochEvaluator {
+ public:
+  BlochEvaluator(const CellGates& cg, bool conditions)
+      : cg_(cg), eig_(cg.dim(), conditions), cond_(conditions) {}
+
+  KExponents at(double k) {
+    cd m[16];
+    build_matrix(cg_, std::polar(1.0, k), m);
+    double l[4], e[4] = {0, 0, 0, 0};
+    eig_.solve(m, l, e);
+    KExponents r;
+    double defect = 0.0;
+    for (int j = 0; j < cg_.dim(); ++j) r.msum += l[j];
+    if (cg_.dim() == 2) {
+      // |det M(z)| = det(A)^2 = 1, so l[0] + l[1] = 0 exactly.
+      defect = std::abs(l[0] + l[1]);
+      r.lam[0] = l[0];
+      r.lam[1] = l[1];
+      r.lam[2] = -l[0];
+      r.lam[3] = -l[1];
+      e[2] = e[0];
+      e[3] = e[1];
+    } else {
+      for (int j = 0; j < 4; ++j) r.lam[j] = l[j];
+    }
+    std::sort(r.lam, r.lam + 4, std::greater<double>());
+    if (cg_.dim() == 4)
+      // M(z)^H J M(z) = J: eigenvalues pair as mu, 1/conj(mu).
+      defect = std::max(std::abs(r.lam[0] + r.lam[3]), std::abs(r.lam[1] + r.lam[2]));
+    if (cond_) r.err = std::max({e[0], e[1], e[2], e[3], 0.5 * defect});
+    return r;
+  }
+
+  // The two nonnegative exponents at k after imposing the exact +- pairing:
+  // a1 = (l1 - l4) / 2 >= a2 = (l2 - l3) / 2 >= 0. Continuous in k.
+  std::pair<double, double> pair_at(double k) {
+    const KExponents r = at(k);
+    return {0.5 * (r.lam[0] - r.lam[3]), 0.5 * (r.lam[1] - r.lam[2])};
+  }
+
+ private:
+  const CellGates& cg_;
+  SmallEig eig_;
+  bool cond_;
+};
+
+// GSL's default error handler aborts; switch it off while we work and restore
+// the caller's handler afterwards. Status codes are checked explicitly.
+struct GslHandlerOff {
+  gsl_error_handler_t* old;
+  GslHandlerOff() : old(gsl_set_error_handler_off()) {}
+  ~GslHandlerOff() { gsl_set_error_handler(old); }
+};
+
+// Wraps a C++ callable for GSL. Exceptions must not cross the C frames: they
+// are stored, NaN is returned, and the caller rethrows.
+struct GslCallback {
+  std::function<double(double)> f;
+  std::exception_ptr err;
+  static double call(double x, void* p) {
+    auto* self = static_cast<GslCallback*>(p);
+    try {
+      return self->f(x);
+    } catch (...) {
+      if (!self->err) self->err = std::current_exception();
+      return std::numeric_limits<double>::quiet_NaN();
+    }
+  }
+  gsl_function fn() {
+    gsl_function F;
+    F.function = &GslCallback::call;
+    F.params = this;
+    return F;
+  }
+  void rethrow() const {
+    if (err) std::rethrow_exception(err);
+  }
+};
+
+// Values within rounding of an edge are put on it, so that a branch lying on
+// an edge (a flat band, say) is binned consistently instead of flickering
+// between two bins and forcing spurious bisections.
+double snap(const std::vector<double>& edges, double v) {
+  const double tol = 64.0 * kEps * std::max(1.0, edges.back());
+  const auto it = std::lower_bound(edges.begin(), edges.end(), v);
+  if (it != edges.end() && *it - v <= tol) return *it;
+  if (it != edges.begin() && v - *(it - 1) <= tol) return *(it - 1);
+  return v;
+}
+
+int bin_of(const std::vector<double>& edges, double v) {
+  const int bins = static_cast<int>(edges.size()) - 1;
+  const int j =
+      static_cast<int>(std::upper_bound(edges.begin(), edges.end(), v) - edges.begin()) - 1;
+  return std::clamp(j, 0, bins - 1);
+}
+
+// Exponent histogram with G uniform cells on [0, pi] (k and -k agree). The
+// two nonnegative branches a1 >= a2 are continuous; where a branch changes
+// bin inside a cell, each edge crossing is located by bisection and the cell
+// is split there. The negative exponents -a_i are the mirror image (the
+// edges are exactly symmetric), so counts[j] = (h[j] + h[bins-1-j]) / (4 pi).
+std::vector<double> histogram_on_grid(BlochEvaluator& ev, int G, const std::vector<double>& edges) {
+  const int bins = static_cast<int>(edges.size()) - 1;
+  const double h = kPi / G;
+  std::vector<double> a1(G + 1), a2(G + 1), ks(G + 1);
+  for (int i = 0; i <= G; ++i) {
+    ks[i] = i == G ? kPi : h * i;
+    std::tie(a1[i], a2[i]) = ev.pair_at(ks[i]);
+    a1[i] = snap(edges, a1[i]);
+    a2[i] = snap(edges, a2[i]);
+  }
+  std::vector<double> acc(bins, 0.0);
+  for (int br = 0; br < 2; ++br) {
+    const std::vector<double>& a = br == 0 ? a1 : a2;
+    auto val = [&](double k) {
+      const auto p = ev.pair_at(k);
+      return snap(edges, br == 0 ? p.first : p.second);
+    };
+    for (int i = 0; i < G; ++i) {
+      const double ka = ks[i], kb = ks[i + 1];
+      int j = bin_of(edges, a[i]);
+      const int jb = bin_of(edges, a[i + 1]);
+      if (j == jb) {
+        acc[j] += kb - ka;
+        continue;
+      }
+      // Walk the edges between j and jb (monotone assumption inside the cell;
+      // grid refinement measures what it misses).
+      double start = ka, lo = ka;
+      while (j != jb) {
+        const int e = jb > j ? j + 1 : j;  // edge index being crossed
+        const double E = edges[e];
+        const bool plo = val(lo) >= E;  // predicate on the known-before side
+        double hi = kb;
+        while (hi - lo > 4 * kEps * std::max(1.0, hi)) {
+          const double mid = 0.5 * (lo + hi);
+          if ((val(mid) >= E) == plo)
+            lo = mid;
+          else
+            hi = mid;
+        }
+        const double cross = std::clamp(0.5 * (lo + hi), start, kb);
+        acc[j] += cross - start;
+        start = cross;
+        j = jb > j ? j + 1 : j - 1;
+      }
+      acc[jb] += kb - start;
+    }
+  }
+  std::vector<double> counts(bins);
+  for (int j = 0; j < bins; ++j) counts[j] = (acc[j] + acc[bins - 1 - j]) / (4.0 * kPi);
+  return counts;
+}
+
+}  // namespace
+
+std::vector<std::complex<double>> bloch_matrix(const Circuit& c, double k, int& dim) {
+  const CellGates cg = extract_gates(c, "bloch_matrix");
+  dim = cg.dim();
+  std::vector<cd> m(static_cast<std::size_t>(dim * dim));
+  build_matrix(cg, std::polar(1.0, k), m.data());
+  return m;
+}
+
+std::vector<double> bloch_exponents(const Circuit& c, double k) {
+  const CellGates cg = extract_gates(c, "bloch_exponents");
+  BlochEvaluator ev(cg, false);
+  const KExponents r = ev.at(k);
+  return std::vector<double>(r.lam, r.lam + 4);
+}
+
+Spectrum bloch_spectrum(const Circuit& c) {
+  if (c.boundary != Boundary::Periodic)
+    throw ModelError(std::string("bloch_spectrum: boundary is ") + boundary_name(c.boundary) +
+                     "; the Bloch decomposition of a finite ring needs periodic boundaries");
+  if (c.L < 2 || c.L % 2 != 0)
+    throw ModelError("bloch_spectrum: L = " + std::to_string(c.L) +
+                     "; the two-site unit cell needs an even L >= 2");
+  const CellGates cg = extract_gates(c, "bloch_spectrum");
+  BlochEvaluator ev(cg, true);
+  const std::int64_t N = c.L / 2;  // momenta k_m = 2 pi m / N
+  Spectrum s;
+  s.method = Method::Bloch;
+  s.exponents.resize(static_cast<std::size_t>(2 * c.L));
+  double err = 0.0, msum = 0.0;
+  // k_m and k_{N-m} = -k_m give the same exponents (real gates), so only
+  // m = 0 .. N/2 are diagonalised.
+  for (std::int64_t m = 0; m <= N / 2; ++m) {
+    const KExponents r = ev.at(2.0 * kPi * static_cast<double>(m) / static_cast<double>(N));
+    err = std::max(err, r.err);
+    msum += r.msum;
+    std::copy(r.lam, r.lam + 4, s.exponents.begin() + 4 * m);
+    const std::int64_t mm = N - m;
+    if (mm != m && mm < N) {
+      std::copy(r.lam, r.lam + 4, s.exponents.begin() + 4 * mm);
+      msum += r.msum;
+    }
+  }
+  std::sort(s.exponents.begin(), s.exponents.end(), std::greater<double>());
+  s.error_bound = err;
+  measure_pairing(s);
+  // Position class: the +- pairing of S holds by construction, so the
+  // informative sum is over what was diagonalised, sum ln|mu(M(z))| = 0
+  // (|det M(z)| = det(A)^2 = 1). In the 4x4 case that is the whole spectrum.
+  if (cg.position) s.sum_defect = std::abs(msum);
+  return s;
+}
+
+// Bulk limit. Per-site quantities of a translation-invariant circuit for
+// L -> infinity depend only on the gates: the boundary changes O(1) of the 2L
+// exponents (an O(1/L) effect per site), so any boundary and any L >= 2 are
+// accepted; the circuit only supplies its bond and site gates.
+BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
+  if (bins < 1)
+    throw std::invalid_argument("bulk_limit: bins = " + std::to_string(bins) + ", needs >= 1");
+  if (!(tol > 0.0)) throw std::invalid_argument("bulk_limit: tol must be positive");
+  const CellGates cg = extract_gates(c, "bulk_limit");
+  BlochEvaluator ev(cg, false);
+  BlochEvaluator ev_cond(cg, true);
+  GslHandlerOff guard;
+  BulkLimit out;
+
+  // ---- lambda_max = sup_k a1(k), a1 the largest exponent at k after the
+  // exact +- pairing is imposed. Grid scan on [0, pi] (a1 is even and 2 pi periodic, so
+  // 0 and pi are interior points of the mirrored function), then Brent.
+  const int Nscan = 4096;
+  const double hs = kPi / Nscan;
+  std::vector<double> top(Nscan + 1);
+  for (int i = 0; i <= Nscan; ++i) top[i] = ev.pair_at(i == Nscan ? kPi : hs * i).first;
+  auto top_at = [&](int i) { return top[i < 0 ? -i : (i > Nscan ? 2 * Nscan - i : i)]; };
+  std::vector<int> cand;
+  for (int i = 0; i <= Nscan; ++i)
+    if (top_at(i) >= top_at(i - 1) && top_at(i) >= top_at(i + 1)) cand.push_back(i);
+  std::sort(cand.begin(), cand.end(), [&](int x, int y) { return top[x] > top[y]; });
+  if (cand.size() > 8) cand.resize(8);
+
+  double lmax = *std::max_element(top.begin(), top.end());
+  double kbest = hs * static_cast<double>(std::max_element(top.begin(), top.end()) - top.begin());
+  double ref_err = 0.0;
+  {
+    GslCallback cb{[&](double k) { return -ev.pair_at(k).first; }, nullptr};
+    gsl_function F = cb.fn();
+    std::unique_ptr<gsl_min_fminimizer, decltype(&gsl_min_fminimizer_free)> mz(
+        gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent), &gsl_min_fminimizer_free);
+    if (!mz) throw std::runtime_error("bulk_limit: gsl_min_fminimizer_alloc failed");
+    double best_err = 0.0;
+    for (int i : cand) {
+      const double km = hs * i, kl = km - hs, ku = km + hs;
+      const double fm = -top_at(i), fl = -top_at(i - 1), fu = -top_at(i + 1);
+      if (!(fm < fl && fm < fu)) continue;  // flat to rounding: no bracket to refine
+      if (gsl_min_fminimizer_set_with_values(mz.get(), &F, km, fm, kl, fl, ku, fu) != GSL_SUCCESS)
+        continue;
+      for (int it = 0; it < 200; ++it) {
+        if (gsl_min_fminimizer_iterate(mz.get()) != GSL_SUCCESS) break;
+        if (gsl_min_test_interval(gsl_min_fminimizer_x_lower(mz.get()),
+                                  gsl_min_fminimizer_x_upper(mz.get()), 1e-11, 0.0) == GSL_SUCCESS)
+          break;
+      }
+      cb.rethrow();
+      const double v = -gsl_min_fminimizer_f_minimum(mz.get());
+      // The maximum lies in the final bracket; the spread of a1 over it
+      // estimates how much the refinement can still be off.
+      const double spread = std::max(v + gsl_min_fminimizer_f_lower(mz.get()),
+                                     v + gsl_min_fminimizer_f_upper(mz.get()));
+      if (v > lmax) {
+        lmax = v;
+        kbest = gsl_min_fminimizer_x_minimum(mz.get());
+        best_err = spread;
+      }
+    }
+    ref_err = best_err;
+  }
+  // Add the eigen-solver error estimate at the maximiser.
+  ref_err = std::max(ref_err, ev_cond.at(kbest).err);
+  out.lambda_max = lmax;
+
+  // ---- ks_density = (1/2pi) int_0^{2pi} (1/2)(a1 + a2) dk = (1/pi) int_0^pi ...
+  {
+    GslCallback cb{[&](double k) {
+                     const auto p = ev.pair_at(k);
+                     return 0.5 * (p.first + p.second);
+                   },
+                   nullptr};
+    gsl_function F = cb.fn();
+    const std::size_t limit = 2000;
+    std::unique_ptr<gsl_integration_workspace, decltype(&gsl_integration_workspace_free)> ws(
+        gsl_integration_workspace_alloc(limit), &gsl_integration_workspace_free);
+    if (!ws) throw std::runtime_error("bulk_limit: gsl_integration_workspace_alloc failed");
+    double result = 0.0, abserr = 0.0;
+    const int status =
+        gsl_integration_qags(&F, 0.0, kPi, tol * kPi, 0.0, limit, ws.get(), &result, &abserr);
+    cb.rethrow();
+    if (!std::isfinite(result))
+      throw std::runtime_error(std::string("bulk_limit: KS integral failed: ") +
+                               gsl_strerror(status));
+    // On GSL_EROUND / GSL_EMAXITER etc. the best estimate is kept and its
+    // error estimate reported through `accuracy`.
+    out.ks_density = result / kPi;
+    out.accuracy = std::max(abserr / kPi, ref_err);
+  }
+
+  // ---- histogram on [-lambda_max, lambda_max], or [-1, 1] when lambda_max is
+  // zero within its own error estimate (elliptic circuits).
+  const double span = (lmax <= std::max(1e-9, 10.0 * ref_err)) ? 1.0 : lmax;
+  out.hist_edges.resize(static_cast<std::size_t>(bins) + 1);
+  for (int j = 0; j <= bins; ++j)
+    // (2j - bins)/bins is exact-sign-symmetric, so edges[bins-j] == -edges[j].
+    out.hist_edges[j] = span * (static_cast<double>(2 * j - bins) / bins);
+  out.hist_edges[0] = -span;
+  out.hist_edges[bins] = span;
+  // Grids of G and 2G cells on [0, pi]; G doubles (up to 65536 cells) until
+  // the two agree to `tol` in every bin. The finer one is returned, and the
+  // last difference is hist_accuracy.
+  int G = 1024;
+  std::vector<double> coarse = histogram_on_grid(ev, G, out.hist_edges);
+  std::vector<double> fine;
+  double diff = 0.0;
+  for (;;) {
+    fine = histogram_on_grid(ev, 2 * G, out.hist_edges);
+    diff = 0.0;
+    for (int j = 0; j < bins; ++j) diff = std::max(diff, std::abs(fine[j] - coarse[j]));
+    if (diff <= tol || 2 * G >= 65536) break;
+    G *= 2;
+    coarse.swap(fine);
+  }
+  out.hist_counts = std::move(fine);
+  out.hist_accuracy = diff;
+  return out;
+}
+
+}  // namespace toral
