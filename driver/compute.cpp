@@ -62,10 +62,15 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
     r.message = msg;
   };
   try {
-    const Circuit circ = build_circuit(c, p);
+    const GateSource gs = gate_source(c, p);
+    const Circuit circ = materialize(gs);
     circ.validate();
     std::string why;
-    const Method m = choose_method(c, circ, why);
+    Method m = choose_method(c, circ, why);
+    if (!gs.time_periodic) {
+      m = Method::None;
+      why = "gates redrawn every period have no one-period spectrum; a tangent-space method is needed";
+    }
     r.method = static_cast<std::int32_t>(m);
     if (m == Method::None) {
       fail(PointStatus::NoMethod, "no spectrum method: " + why);

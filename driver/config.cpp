@@ -225,7 +225,7 @@ SweepSpec read_sweep(const Ctx& cx, const toml::table& t, std::size_t index) {
   SweepSpec s;
   s.where = "sweep[" + std::to_string(index) + "]";
   const std::int64_t line = static_cast<std::int64_t>(t.source().begin.line);
-  cx.only_keys(t, s.where, {"name", "sites", "boundary", "seeds", "bond", "site"});
+  cx.only_keys(t, s.where, {"name", "sites", "boundary", "seeds", "disorder", "bond", "site"});
   s.name = t.get("name") ? cx.string(*t.get("name"), s.where + ".name") : "sweep" + std::to_string(index);
   if (!t.get("sites")) cx.fail(line, s.where, "missing 'sites' (the lattice sizes L)");
   const toml::node& sites = *t.get("sites");
@@ -263,6 +263,11 @@ SweepSpec read_sweep(const Ctx& cx, const toml::table& t, std::size_t index) {
       if (v < 0) cx.fail(*sd, s.where + ".seeds", "seeds must be >= 0");
   } else if (drawn) {
     cx.fail(line, s.where, "a gate parameter is drawn but 'seeds' is missing");
+  }
+  if (const toml::node* d = t.get("disorder")) {
+    s.redrawn = cx.choice(*d, s.where + ".disorder", {"frozen", "redrawn"}) == "redrawn";
+    if (s.redrawn && !drawn)
+      cx.fail(*d, s.where + ".disorder", "\"redrawn\" needs a drawn gate parameter ({draw = [lo, hi]})");
   }
   return s;
 }

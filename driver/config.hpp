@@ -47,6 +47,7 @@ struct SweepSpec {
   GateSpec bond;
   GateSpec site;  // present == false: no one-site layer
   std::vector<std::int64_t> seeds;  // only when something is drawn
+  bool redrawn = false;             // drawn gates redrawn every period (time-random circuit)
   std::string where;
 };
 

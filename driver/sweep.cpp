@@ -142,8 +142,10 @@ std::string point_identity(const Config& c, const Point& p) {
 
 namespace {
 
-// Stream tags separating bond draws from site draws.
+// Stream tags separating bond draws from site draws; the period of a
+// time-redrawn circuit is folded into the same counter word.
 constexpr std::uint64_t kTagBond = 1, kTagSite = 2;
+std::uint64_t stream_tag(std::uint64_t tag, std::int64_t t) { return tag | (static_cast<std::uint64_t>(t) << 8); }
 
 Mat2 family_gate(const GateSpec& g, const std::vector<std::int64_t>& fixed, std::uint64_t seed,
                  std::uint64_t key, std::uint64_t slot, std::uint64_t tag) {
@@ -157,35 +159,49 @@ Mat2 family_gate(const GateSpec& g, const std::vector<std::int64_t>& fixed, std:
 
 }  // namespace
 
-Circuit build_circuit(const Config& c, const Point& p) {
+GateSource gate_source(const Config& c, const Point& p) {
   const SweepSpec& s = c.sweeps[static_cast<std::size_t>(p.sweep)];
-  Circuit circ;
-  circ.L = p.L;
-  circ.boundary = p.boundary;
+  GateSource g;
+  g.L = p.L;
+  g.boundary = p.boundary;
+  g.has_site_layer = s.site.present;
+  g.position_class = !s.bond.symplectic && !s.site.present;
+  g.time_periodic = !s.redrawn;
+  const bool bond_drawn = s.bond.drawn(), site_drawn = s.site.drawn();
+  g.translation_invariant = !bond_drawn && !site_drawn;
   const std::uint64_t seed = p.seed >= 0 ? static_cast<std::uint64_t>(p.seed) : 0;
   const std::uint64_t key = fnv1a64(point_identity(c, p));
-  const std::int64_t nb = circ.bond_count();
-  circ.bonds.reserve(static_cast<std::size_t>(nb));
-  const bool bond_drawn = s.bond.drawn();
-  BondGate uniform;
-  if (s.bond.explicit_matrix)
-    uniform = s.bond.symplectic ? BondGate::symplectic(s.bond.m4) : BondGate::position(s.bond.m2);
-  else if (!bond_drawn)
-    uniform = BondGate::position(family_gate(s.bond, p.bond, seed, key, 0, kTagBond));
-  for (std::int64_t b = 0; b < nb; ++b)
-    circ.bonds.push_back(bond_drawn ? BondGate::position(family_gate(s.bond, p.bond, seed, key,
-                                                                     static_cast<std::uint64_t>(b), kTagBond))
-                                    : uniform);
-  if (s.site.present) {
-    const bool site_drawn = s.site.drawn();
-    Mat2 g = s.site.explicit_matrix ? s.site.m2 : Mat2::identity();
-    if (!s.site.explicit_matrix && !site_drawn) g = family_gate(s.site, p.site, seed, key, 0, kTagSite);
-    circ.sites.reserve(static_cast<std::size_t>(p.L));
-    for (std::int64_t i = 0; i < p.L; ++i)
-      circ.sites.push_back(site_drawn ? family_gate(s.site, p.site, seed, key, static_cast<std::uint64_t>(i), kTagSite)
-                                      : g);
+  const bool redrawn = s.redrawn;
+  if (!bond_drawn) {
+    BondGate uniform;
+    if (s.bond.explicit_matrix)
+      uniform = s.bond.symplectic ? BondGate::symplectic(s.bond.m4) : BondGate::position(s.bond.m2);
+    else
+      uniform = BondGate::position(family_gate(s.bond, p.bond, seed, key, 0, kTagBond));
+    g.bond = [uniform](std::int64_t, std::int64_t) { return uniform; };
+  } else {
+    const GateSpec spec = s.bond;
+    const std::vector<std::int64_t> fixed = p.bond;
+    g.bond = [spec, fixed, seed, key, redrawn](std::int64_t b, std::int64_t t) {
+      return BondGate::position(family_gate(spec, fixed, seed, key, static_cast<std::uint64_t>(b),
+                                            stream_tag(kTagBond, redrawn ? t : 0)));
+    };
   }
-  return circ;
+  if (s.site.present) {
+    if (!site_drawn) {
+      const Mat2 m = s.site.explicit_matrix ? s.site.m2 : family_gate(s.site, p.site, seed, key, 0, kTagSite);
+      g.site = [m](std::int64_t, std::int64_t) { return m; };
+    } else {
+      const GateSpec spec = s.site;
+      const std::vector<std::int64_t> fixed = p.site;
+      g.site = [spec, fixed, seed, key, redrawn](std::int64_t i, std::int64_t t) {
+        return family_gate(spec, fixed, seed, key, static_cast<std::uint64_t>(i), stream_tag(kTagSite, redrawn ? t : 0));
+      };
+    }
+  }
+  return g;
 }
+
+Circuit build_circuit(const Config& c, const Point& p) { return materialize(gate_source(c, p)); }
 
 }  // namespace toral

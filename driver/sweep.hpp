@@ -42,8 +42,11 @@ std::vector<Point> expand(const Config& c);
 // the sweep); its hash keys the disorder streams together with the seed.
 std::string point_identity(const Config& c, const Point& p);
 
-// Builds the circuit of a point: gates from matrices or families, drawn
-// parameters from the (seed, point identity, bond/site) streams.
+// The gates of a point, on demand: from matrices or families, drawn
+// parameters from the (seed, point identity, bond/site, period) streams.
+GateSource gate_source(const Config& c, const Point& p);
+
+// All gates of a point's first period (materialize(gate_source(c, p))).
 Circuit build_circuit(const Config& c, const Point& p);
 
 }  // namespace toral

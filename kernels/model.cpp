@@ -94,6 +94,19 @@ void Circuit::validate() const {
   for (std::size_t i = 0; i < sites.size(); ++i) validate_site_gate(sites[i], "site " + std::to_string(i));
 }
 
+Circuit materialize(const GateSource& g, std::int64_t t) {
+  Circuit c;
+  c.L = g.L;
+  c.boundary = g.boundary;
+  c.bonds.reserve(static_cast<std::size_t>(g.bond_count()));
+  for (std::int64_t b = 0; b < g.bond_count(); ++b) c.bonds.push_back(g.bond(b, t));
+  if (g.has_site_layer) {
+    c.sites.reserve(static_cast<std::size_t>(g.L));
+    for (std::int64_t i = 0; i < g.L; ++i) c.sites.push_back(g.site(i, t));
+  }
+  return c;
+}
+
 std::int64_t SparseInt::at(std::int64_t i, std::int64_t j) const {
   for (std::int64_t k = rowptr[i]; k < rowptr[i + 1]; ++k)
     if (col[k] == j) return val[k];

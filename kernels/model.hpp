@@ -11,6 +11,7 @@
 // (optionally) the layer of one-site gates: S = S_site * S_odd * S_even.
 #pragma once
 #include <cstdint>
+#include <functional>
 #include <stdexcept>
 #include <string>
 #include <vector>
@@ -60,6 +61,25 @@ struct Circuit {
   // Checks sizes, parity (periodic brick-wall needs even L, L >= 2) and gates.
   void validate() const;
 };
+
+// A circuit whose gates are produced on demand, for lattices too large to
+// hold every gate and for circuits redrawn every period. `bond(b, t)` and
+// `site(i, t)` give the gates of period t (t is ignored by time-periodic
+// circuits); they must be pure functions of their arguments.
+struct GateSource {
+  std::int64_t L = 0;
+  Boundary boundary = Boundary::Periodic;
+  bool has_site_layer = false;
+  bool position_class = true;     // every bond position-class and no site layer
+  bool time_periodic = true;      // false: gates redrawn every period
+  bool translation_invariant = false;
+  std::function<BondGate(std::int64_t b, std::int64_t t)> bond;
+  std::function<Mat2(std::int64_t i, std::int64_t t)> site;
+  std::int64_t bond_count() const { return boundary == Boundary::Periodic ? L : L - 1; }
+};
+
+// All gates of period t as a Circuit (memory O(L)).
+Circuit materialize(const GateSource& g, std::int64_t t = 0);
 
 // Sparse integer matrix in compressed rows. Entries are exact int64.
 struct SparseInt {

@@ -181,3 +181,39 @@ b = 1
   const Circuit z = build_circuit(c2, expand(c2)[1]);  // L = 32, seed 5
   EXPECT_EQ(z.L, 32);
 }
+
+TEST(Sweep, RedrawnGatesChangeEveryPeriodFrozenOnesDoNot) {
+  // Time-random circuits draw from the period-t stream; frozen ones ignore t.
+  const std::string base = R"([[sweep]]
+sites = 12
+seeds = [3]
+DISORDER
+[sweep.bond]
+family = "shear2"
+a = { draw = [-2, 2] }
+b = { draw = [-2, 2] }
+)";
+  auto make = [&](const std::string& d) {
+    std::string t = base;
+    t.replace(t.find("DISORDER"), 8, d);
+    return parse_config(t, "t.toml");
+  };
+  const Config fr = make("disorder = \"frozen\""), rd = make("disorder = \"redrawn\"");
+  const GateSource a = gate_source(fr, expand(fr)[0]), b = gate_source(rd, expand(rd)[0]);
+  EXPECT_TRUE(a.time_periodic);
+  EXPECT_FALSE(b.time_periodic);
+  int changed_frozen = 0, changed_redrawn = 0;
+  for (std::int64_t k = 0; k < 12; ++k) {
+    changed_frozen += !(a.bond(k, 0) == a.bond(k, 5));
+    changed_redrawn += !(b.bond(k, 0) == b.bond(k, 5));
+    EXPECT_TRUE(a.bond(k, 0) == b.bond(k, 0));  // period 0 is the frozen draw
+  }
+  EXPECT_EQ(changed_frozen, 0);
+  EXPECT_GT(changed_redrawn, 6);  // 25 gate values: most bonds change
+  expect_error(R"([[sweep]]
+sites = 8
+disorder = "redrawn"
+[sweep.bond]
+matrix = [[1,1],[0,1]]
+)", {"t.toml:3", "needs a drawn gate parameter"});
+}
