@@ -60,12 +60,13 @@ ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& 
   const auto& e = s.exponents;
   if (e.empty()) throw std::invalid_argument("summarize: empty spectrum");
   r.lambda_max = e.front();
-  // An exponent counts as positive only above its own error bound (Jordan
-  // blocks on the unit circle give exponents of order sqrt(eps)).
+  // An exponent counts as positive only above its own error estimate
+  // (eigenvalues of Jordan blocks on the unit circle scatter by eps^(1/m)).
+  const bool per = s.errors.size() == e.size();
   const double zero = std::max(o.zero_tol, s.error_bound);
-  for (double x : e)
-    if (x > zero) {
-      r.ks_rate += x;
+  for (std::size_t i = 0; i < e.size(); ++i)
+    if (e[i] > (per ? std::max(o.zero_tol, s.errors[i]) : zero)) {
+      r.ks_rate += e[i];
       ++r.unstable_count;
     }
   r.ks_density = r.ks_rate / static_cast<double>(L);
@@ -73,7 +74,15 @@ ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& 
   const std::int64_t keep = n <= o.keep_all ? n : std::min<std::int64_t>(o.top, n);
   r.kept.assign(e.begin(), e.begin() + keep);
   const double span = r.lambda_max > o.zero_tol ? r.lambda_max : 1.0;
-  histogram(e, -span, span, o.bins, r.hist_counts, r.hist_edges, zero);
+  if (per) {
+    // Exponents within their own error of zero are zeros blurred by rounding.
+    std::vector<double> v(e);
+    for (std::size_t i = 0; i < v.size(); ++i)
+      if (std::fabs(v[i]) <= std::max(o.zero_tol, s.errors[i])) v[i] = 0.0;
+    histogram(v, -span, span, o.bins, r.hist_counts, r.hist_edges, o.zero_tol);
+  } else {
+    histogram(e, -span, span, o.bins, r.hist_counts, r.hist_edges, zero);
+  }
   return r;
 }
 
@@ -97,9 +106,26 @@ DenseEig dense_eigenvalues(std::vector<double> a, std::int64_t n) {
   if (info != 0)
     throw std::runtime_error("LAPACK dgeevx failed (info = " + std::to_string(info) + ")");
   const double eps = std::numeric_limits<double>::epsilon();
-  r.err.resize(static_cast<std::size_t>(n));
-  for (std::size_t i = 0; i < r.err.size(); ++i)
-    r.err[i] = rconde[i] > 0 ? eps * abnrm / rconde[i] : std::numeric_limits<double>::infinity();
+  const std::size_t nn = static_cast<std::size_t>(n);
+  r.err.resize(nn);
+  std::vector<double> dist(nn);
+  for (std::size_t i = 0; i < nn; ++i) {
+    double best = rconde[i] > 0 ? eps * abnrm / rconde[i] : std::numeric_limits<double>::infinity();
+    if (best > 2 * abnrm * std::sqrt(eps)) {
+      // Ill-conditioned: look for the smallest cluster that explains it.
+      for (std::size_t j = 0; j < nn; ++j) dist[j] = std::hypot(r.re[j] - r.re[i], r.im[j] - r.im[i]);
+      std::sort(dist.begin(), dist.end());
+      for (std::size_t m = 2; m <= nn; ++m) {
+        const double radius = 2 * abnrm * std::pow(eps, 1.0 / static_cast<double>(m));
+        if (radius >= best) break;
+        if (dist[m - 1] <= radius) {
+          best = radius;
+          break;
+        }
+      }
+    }
+    r.err[i] = best;
+  }
   return r;
 }
 
@@ -109,20 +135,24 @@ Spectrum dense_spectrum(const Circuit& c) {
   const bool pos = c.position_class();
   const SparseInt A = pos ? assemble_position_block(c) : assemble_period(c);
   const DenseEig eig = dense_eigenvalues(A.dense(), A.n);
-  std::vector<double> lam;
+  std::vector<std::pair<double, double>> lam;  // (exponent, error)
   lam.reserve(static_cast<std::size_t>(2 * c.L));
   double bound = 0.0, msum = 0.0;
   for (std::size_t i = 0; i < eig.re.size(); ++i) {
     const double mod = std::hypot(eig.re[i], eig.im[i]);
     const double l = std::log(mod);
-    lam.push_back(l);
-    if (pos) lam.push_back(-l);  // spec(S) = spec(M) u 1/spec(M)
+    // d(ln|mu|) = d|mu| / |mu|, and at most the distance to ln of the far side
+    const double e = eig.err[i] < mod ? std::log1p(eig.err[i] / (mod - eig.err[i])) : std::numeric_limits<double>::infinity();
+    lam.emplace_back(l, e);
+    if (pos) lam.emplace_back(-l, e);  // spec(S) = spec(M) u 1/spec(M)
     msum += l;
-    // d(ln|mu|) = d|mu| / |mu|
-    bound = std::max(bound, eig.err[i] / mod);
+    bound = std::max(bound, e);
   }
-  std::sort(lam.begin(), lam.end(), std::greater<double>());
-  s.exponents = std::move(lam);
+  std::sort(lam.begin(), lam.end(), [](const auto& a, const auto& b) { return a.first > b.first; });
+  for (const auto& [l, e] : lam) {
+    s.exponents.push_back(l);
+    s.errors.push_back(e);
+  }
   measure_pairing(s);
   // For a position-class circuit the +- pairing holds by construction; the
   // independent check is ln|det M| = sum ln|mu(M)| = 0 (det M = +-1).

@@ -15,6 +15,7 @@ const char* method_name(Method m);
 struct Spectrum {
   Method method = Method::None;
   std::vector<double> exponents;  // size 2L, descending
+  std::vector<double> errors;     // per-exponent error estimates (same order), or empty
   // Accuracy estimates:
   double pairing_defect = 0.0;  // max_i |lambda_i + lambda_{2L+1-i}|
   double sum_defect = 0.0;      // |sum_i lambda_i| of what was diagonalised
@@ -57,8 +58,12 @@ void histogram(const std::vector<double>& values, double lo, double hi, int bins
 // and std::runtime_error when LAPACK fails.
 Spectrum dense_spectrum(const Circuit& c);
 
-// Eigenvalues of a dense real row-major n x n matrix with LAPACK dgeevx;
-// also returns an error bound per eigenvalue (eps * ||A|| / rcond).
+// Eigenvalues of a dense real row-major n x n matrix with LAPACK dgeevx, with
+// an error estimate per eigenvalue: the first-order bound eps ||A|| / rcond
+// (LAPACK Users' Guide, section 4.8), or, where that is larger, the radius
+// 2 ||A|| eps^(1/m) of a cluster of m computed eigenvalues around it (an
+// m x m Jordan block perturbed by eps ||A|| moves its eigenvalue by about
+// that much: Wilkinson, The Algebraic Eigenvalue Problem, 1965, ch. 2).
 struct DenseEig {
   std::vector<double> re, im, err;
 };
