@@ -1,0 +1,950 @@
+#include "gaussian_exact.hpp"
+
+#include <acb.h>
+#include <acb_poly.h>
+#include <arb.h>
+#include <arb_fmpz_poly.h>
+#include <flint/fmpz.h>
+#include <flint/fmpz_mat.h>
+#include <flint/fmpz_poly.h>
+#include <flint/fmpz_poly_factor.h>
+#include <flint/fmpz_vec.h>
+#include <flint/nmod_mat.h>
+#include <flint/nmod_poly.h>
+#include <flint/ulong_extras.h>
+
+#include <algorithm>
+#include <cstdint>
+#include <memory>
+#include <cmath>
+#include <numbers>
+#include <numeric>
+#include <stdexcept>
+#include <string>
+#include <utility>
+
+namespace toral {
+
+namespace {
+
+// ---- RAII holders for the FLINT / arb types used here (no copies).
+struct Fmpz {
+  fmpz_t v;
+  Fmpz() { fmpz_init(v); }
+  ~Fmpz() { fmpz_clear(v); }
+  Fmpz(const Fmpz&) = delete;
+  Fmpz& operator=(const Fmpz&) = delete;
+};
+
+struct FmpzMat {
+  fmpz_mat_t m;
+  FmpzMat(slong r, slong c) { fmpz_mat_init(m, r, c); }
+  ~FmpzMat() { fmpz_mat_clear(m); }
+  FmpzMat(const FmpzMat&) = delete;
+  FmpzMat& operator=(const FmpzMat&) = delete;
+};
+
+struct FmpzPoly {
+  fmpz_poly_t p;
+  FmpzPoly() { fmpz_poly_init(p); }
+  ~FmpzPoly() { fmpz_poly_clear(p); }
+  FmpzPoly(const FmpzPoly&) = delete;
+  FmpzPoly& operator=(const FmpzPoly&) = delete;
+};
+
+struct PolyFactor {
+  fmpz_poly_factor_t f;
+  PolyFactor() { fmpz_poly_factor_init(f); }
+  ~PolyFactor() { fmpz_poly_factor_clear(f); }
+  PolyFactor(const PolyFactor&) = delete;
+  PolyFactor& operator=(const PolyFactor&) = delete;
+};
+
+struct Arb {
+  arb_t v;
+  Arb() { arb_init(v); }
+  ~Arb() { arb_clear(v); }
+  Arb(const Arb&) = delete;
+  Arb& operator=(const Arb&) = delete;
+};
+
+struct Arf {
+  arf_t v;
+  Arf() { arf_init(v); }
+  ~Arf() { arf_clear(v); }
+  Arf(const Arf&) = delete;
+  Arf& operator=(const Arf&) = delete;
+};
+
+struct Acb {
+  acb_t v;
+  Acb() { acb_init(v); }
+  ~Acb() { acb_clear(v); }
+  Acb(const Acb&) = delete;
+  Acb& operator=(const Acb&) = delete;
+};
+
+struct Mag {
+  mag_t v;
+  Mag() { mag_init(v); }
+  ~Mag() { mag_clear(v); }
+  Mag(const Mag&) = delete;
+  Mag& operator=(const Mag&) = delete;
+};
+
+struct AcbVec {
+  acb_ptr p;
+  slong n;
+  explicit AcbVec(slong n_) : p(_acb_vec_init(n_)), n(n_) {}
+  ~AcbVec() { _acb_vec_clear(p, n); }
+  AcbVec(const AcbVec&) = delete;
+  AcbVec& operator=(const AcbVec&) = delete;
+};
+
+// FLINT's inline fmpz_neg / fmpz_set_si call GMP directly, and the build
+// links FLINT and arb but not GMP itself: use FLINT's exported functions.
+void neg(fmpz_t r, const fmpz_t x) { fmpz_mul_si(r, x, -1); }
+void set_si(fmpz_t r, slong v) {
+  fmpz_one(r);
+  fmpz_mul_si(r, r, v);
+}
+
+// Midpoint of x rounded to double and a certified bound on |x - midpoint|.
+std::pair<double, double> to_double_with_radius(const arb_t x) {
+  const double mid = arf_get_d(arb_midref(x), ARF_RND_NEAR);
+  Arb err;
+  arb_set_d(err.v, mid);
+  arb_sub(err.v, x, err.v, 2 * arf_bits(arb_midref(x)) + 64);
+  Arf ub;
+  arb_get_abs_ubound_arf(ub.v, err.v, 64);
+  return {mid, arf_get_d(ub.v, ARF_RND_UP)};
+}
+
+// Plain validated data for one run.
+struct Problem {
+  std::int64_t L = 0;
+  std::int64_t k = 0;              // |A|
+  std::vector<std::int64_t> rows;  // global rows of P_A: q's of A, then p's of A
+  // sigma0 = diag(D) / (2 Den) with D integers (q columns 0..L-1, then p's).
+  std::vector<Fmpz> D;
+  Fmpz den;
+  bool unit_D = true;  // every D_c == 1 (all vacuum)
+};
+
+void build_sigma0(Problem& pr, const std::vector<GaussianSite>& init) {
+  const std::int64_t L = pr.L;
+  // Reduced s = n/d per squeezed site; Den = lcm of every n and d.
+  std::vector<std::pair<std::int64_t, std::int64_t>> s(static_cast<std::size_t>(L), {1, 1});
+  fmpz_one(pr.den.v);
+  Fmpz tmp;
+  for (std::int64_t i = 0; i < L; ++i) {
+    const GaussianSite& g = init[static_cast<std::size_t>(i)];
+    if (!g.squeezed) continue;
+    if (g.den == 0)
+      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) +
+                                  ": squeezing s = " + std::to_string(g.num) + "/0 has a zero denominator");
+    if ((g.num > 0) != (g.den > 0) || g.num == 0)
+      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) + ": squeezing s = " +
+                                  std::to_string(g.num) + "/" + std::to_string(g.den) + " must be > 0");
+    if (g.num == INT64_MIN || g.den == INT64_MIN)
+      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) +
+                                  ": squeezing numerator/denominator out of range");
+    std::int64_t n = g.num < 0 ? -g.num : g.num, d = g.den < 0 ? -g.den : g.den;
+    const std::int64_t gg = std::gcd(n, d);
+    n /= gg;
+    d /= gg;
+    s[static_cast<std::size_t>(i)] = {n, d};
+    set_si(tmp.v, n);
+    fmpz_lcm(pr.den.v, pr.den.v, tmp.v);
+    set_si(tmp.v, d);
+    fmpz_lcm(pr.den.v, pr.den.v, tmp.v);
+  }
+  pr.D = std::vector<Fmpz>(static_cast<std::size_t>(2 * L));
+  for (std::int64_t i = 0; i < L; ++i) {
+    const auto [n, d] = s[static_cast<std::size_t>(i)];
+    // q: Den * n / d, p: Den * d / n (exact: n and d divide Den).
+    fmpz_mul_si(pr.D[static_cast<std::size_t>(i)].v, pr.den.v, n);
+    fmpz_divexact_si(pr.D[static_cast<std::size_t>(i)].v, pr.D[static_cast<std::size_t>(i)].v, d);
+    fmpz_mul_si(pr.D[static_cast<std::size_t>(L + i)].v, pr.den.v, d);
+    fmpz_divexact_si(pr.D[static_cast<std::size_t>(L + i)].v, pr.D[static_cast<std::size_t>(L + i)].v, n);
+  }
+  pr.unit_D = true;
+  for (const Fmpz& x : pr.D)
+    if (!fmpz_is_one(x.v)) pr.unit_D = false;
+}
+
+// The light-cone-restricted rows R = P_A S^t: columns `support` (sorted
+// global indices) of the 2k x 2L matrix, stored as a 2k x |support| fmpz_mat.
+class LightCone {
+ public:
+  LightCone(const Problem& pr, const SparseInt& S)
+      : pr_(pr),
+        S_(S),
+        where_(static_cast<std::size_t>(2 * pr.L), -1),
+        mark_(static_cast<std::size_t>(2 * pr.L), 0) {
+    support_ = pr.rows;
+    std::sort(support_.begin(), support_.end());
+    R_ = std::make_unique<FmpzMat>(2 * pr.k, static_cast<slong>(support_.size()));
+    for (std::int64_t r = 0; r < 2 * pr.k; ++r) {
+      const auto it =
+          std::lower_bound(support_.begin(), support_.end(), pr.rows[static_cast<std::size_t>(r)]);
+      fmpz_one(fmpz_mat_entry(R_->m, r, it - support_.begin()));
+    }
+  }
+
+  // R <- R S, on the columns that can be non-zero; columns that come out
+  // exactly zero are dropped.
+  void step() {
+    const std::int64_t n2 = 2 * pr_.L;
+    std::vector<std::int64_t> next;
+    for (std::int64_t g : support_)
+      for (std::int64_t e = S_.rowptr[g]; e < S_.rowptr[g + 1]; ++e) mark_[S_.col[e]] = 1;
+    for (std::int64_t j = 0; j < n2; ++j)
+      if (mark_[j]) {
+        where_[j] = static_cast<std::int64_t>(next.size());
+        next.push_back(j);
+        mark_[j] = 0;
+      }
+    const slong rows = 2 * pr_.k;
+    auto Rn = std::make_unique<FmpzMat>(rows, static_cast<slong>(next.size()));
+    for (std::size_t ci = 0; ci < support_.size(); ++ci) {
+      const std::int64_t g = support_[ci];
+      for (std::int64_t e = S_.rowptr[g]; e < S_.rowptr[g + 1]; ++e) {
+        const std::int64_t jj = where_[S_.col[e]];
+        const slong v = static_cast<slong>(S_.val[e]);
+        for (slong r = 0; r < rows; ++r)
+          fmpz_addmul_si(fmpz_mat_entry(Rn->m, r, jj), fmpz_mat_entry(R_->m, r, ci), v);
+      }
+    }
+    for (std::int64_t j : next) where_[j] = -1;
+    // Drop exactly-zero columns (cancellations can shrink the support).
+    std::vector<std::int64_t> keep;
+    keep.reserve(next.size());
+    for (std::size_t j = 0; j < next.size(); ++j) {
+      bool nz = false;
+      for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->m, r, j));
+      if (nz) keep.push_back(static_cast<std::int64_t>(j));
+    }
+    if (keep.size() != next.size()) {
+      auto Rk = std::make_unique<FmpzMat>(rows, static_cast<slong>(keep.size()));
+      std::vector<std::int64_t> kept_cols;
+      for (std::size_t j = 0; j < keep.size(); ++j) {
+        for (slong r = 0; r < rows; ++r)
+          fmpz_swap(fmpz_mat_entry(Rk->m, r, j), fmpz_mat_entry(Rn->m, r, keep[j]));
+        kept_cols.push_back(next[static_cast<std::size_t>(keep[j])]);
+      }
+      Rn = std::move(Rk);
+      next = std::move(kept_cols);
+    }
+    support_ = std::move(next);
+    R_ = std::move(Rn);
+  }
+
+  // G = R diag(D) R^T (2k x 2k, symmetric, exact) = 2 Den sigma_A.
+  void gram(fmpz_mat_t G) const {
+    const slong rows = 2 * pr_.k;
+    const slong n = static_cast<slong>(support_.size());
+    if (n == 0) {
+      fmpz_mat_zero(G);
+      return;
+    }
+    FmpzMat RD(rows, n);
+    const fmpz_mat_struct* W = R_->m;
+    if (!pr_.unit_D) {
+      for (slong r = 0; r < rows; ++r)
+        for (slong j = 0; j < n; ++j)
+          fmpz_mul(fmpz_mat_entry(RD.m, r, j), fmpz_mat_entry(R_->m, r, j),
+                   pr_.D[static_cast<std::size_t>(support_[static_cast<std::size_t>(j)])].v);
+      W = RD.m;
+    }
+    for (slong a = 0; a < rows; ++a)
+      for (slong b = a; b < rows; ++b) {
+        _fmpz_vec_dot(fmpz_mat_entry(G, a, b), fmpz_mat_entry(R_->m, a, 0), fmpz_mat_entry(W, b, 0), n);
+        if (b != a) fmpz_set(fmpz_mat_entry(G, b, a), fmpz_mat_entry(G, a, b));
+      }
+  }
+
+  std::int64_t bits() const {
+    const slong b = fmpz_mat_max_bits(R_->m);
+    return b < 0 ? -b : b;
+  }
+  std::int64_t columns() const { return static_cast<std::int64_t>(support_.size()); }
+
+ private:
+  const Problem& pr_;
+  const SparseInt& S_;
+  std::vector<std::int64_t> support_;
+  std::unique_ptr<FmpzMat> R_;
+  std::vector<std::int64_t> where_;
+  std::vector<char> mark_;
+};
+
+// One t: symplectic eigenvalues and entropy from G = 2 Den sigma_A.
+struct ModeBall {
+  double mid = 0.0, rad = 0.0;
+};
+
+struct PointResult {
+  double entropy = 0.0, radius = 0.0;
+  std::int64_t pure = 0, prec = 0;
+  bool met = true;
+  std::vector<ModeBall> nu;  // descending, with multiplicity (only if asked)
+};
+
+// f(nu) for the mode with z = mu^2 - Den^2 > 0 (mu = 2 Den nu), given
+// c4 = 4 Den^2: u = z / c4 = nu^2 - 1/4, nu = sqrt(u + 1/4),
+// w = nu - 1/2 = u / (nu + 1/2) (no cancellation), and
+//   f = (1 + w) log1p(w) - w log w         for w < 1 (both terms >= 0),
+//   f = (1 + w) log1p(1/w) + log w         for w >= 1 (both terms > 0).
+// A relative error e of z changes f by at most about e: |z df/dz| <= 1.
+void mode_entropy(arb_t f, arb_t nu, const arb_t z, const fmpz_t c4, slong wp) {
+  Arb u, w, t1, t2;
+  arb_div_fmpz(u.v, z, c4, wp);
+  arb_set_d(t1.v, 0.25);
+  arb_add(nu, u.v, t1.v, wp);
+  arb_sqrt(nu, nu, wp);
+  arb_set_d(t1.v, 0.5);
+  arb_add(t1.v, nu, t1.v, wp);
+  arb_div(w.v, u.v, t1.v, wp);  // w = nu - 1/2
+  if (arf_cmp_si(arb_midref(w.v), 1) < 0) {
+    arb_log1p(t1.v, w.v, wp);
+    arb_add_ui(t2.v, w.v, 1, wp);
+    arb_mul(t1.v, t1.v, t2.v, wp);  // (1+w) log1p(w)
+    arb_log(t2.v, w.v, wp);
+    arb_mul(t2.v, t2.v, w.v, wp);  // w log w
+    arb_sub(f, t1.v, t2.v, wp);
+  } else {
+    arb_inv(t1.v, w.v, wp);
+    arb_log1p(t1.v, t1.v, wp);
+    arb_add_ui(t2.v, w.v, 1, wp);
+    arb_mul(t1.v, t1.v, t2.v, wp);  // (1+w) log1p(1/w)
+    arb_log(t2.v, w.v, wp);
+    arb_add(f, t1.v, t2.v, wp);
+  }
+}
+
+slong clog2(std::int64_t n) {
+  slong b = 0;
+  while ((std::int64_t{1} << b) < n) ++b;
+  return b;
+}
+
+// Upper bounds e_j(x_1..x_n), j = 0..n, of the elementary symmetric functions
+// of non-negative balls x (ball arithmetic; e[j] contains the exact value).
+void elementary_symmetric(std::vector<Arb>& e, const std::vector<const arb_struct*>& x, slong prec) {
+  const std::size_t n = x.size();
+  e = std::vector<Arb>(n + 1);
+  arb_one(e[0].v);
+  Arb t;
+  for (std::size_t i = 0; i < n; ++i)
+    for (std::size_t j = i + 1; j >= 1; --j) {
+      arb_mul(t.v, e[j - 1].v, x[i], prec);
+      arb_add(e[j].v, e[j].v, t.v, prec);
+    }
+}
+
+// The characteristic polynomial of J G, reduced to q(y) = prod_j (y - mu_j^2),
+// by multi-modular reduction and CRT (FLINT nmod_mat_charpoly per prime,
+// fmpz_comb for the reductions and the reconstruction). `bound_bits` must
+// satisfy |q_i| < 2^bound_bits for every coefficient: then the symmetric CRT
+// over primes with product > 2^(bound_bits + 1) is exact. A further prime,
+// not used in the reconstruction, checks the result; false on a mismatch.
+class ModularCharpoly {
+ public:
+  ~ModularCharpoly() { drop_comb(); }
+
+  bool even_charpoly(fmpz_poly_t q, const fmpz_mat_t G, slong k, slong bound_bits) {
+    const slong n = 2 * k;
+    // Rounded up to a multiple of 32 primes so that the comb (product tree and
+    // CRT inverses) is rebuilt only every few steps as the bound grows.
+    const slong np = 32 * ((std::max<slong>(1, (bound_bits + 1 + 61) / 62) + 31) / 32);
+    ensure_primes(np + 1);
+    set_comb(np);
+    // q-p decoupled sigma_A = X (+) Z (position-class circuits on q-p
+    // product states): mu_j^2 are the eigenvalues of Z X, so q = charpoly(Z X),
+    // k x k instead of 2k x 2k.
+    bool decoupled = true;
+    for (slong a = 0; a < k && decoupled; ++a)
+      for (slong b = k; b < n && decoupled; ++b) decoupled = fmpz_is_zero(fmpz_mat_entry(G, a, b));
+    // Residues of the distinct entries of G that are used.
+    std::vector<mp_limb_t> res(static_cast<std::size_t>(n * n * np), 0);
+    for (slong a = 0; a < n; ++a)
+      for (slong b = a; b < n; ++b) {
+        if (decoupled && a < k && b >= k) continue;  // zero block
+        mp_limb_t* r = res.data() + (a * n + b) * np;
+        fmpz_multi_mod_ui(r, fmpz_mat_entry(G, a, b), comb_, temp_);
+        if (b != a) std::copy(r, r + np, res.data() + (b * n + a) * np);
+      }
+    std::vector<mp_limb_t> qres(static_cast<std::size_t>((k + 1) * np));
+    std::vector<mp_limb_t> gq(static_cast<std::size_t>(k + 1));
+    for (slong ip = 0; ip < np; ++ip) {
+      if (!charpoly_mod(
+              gq, [&](slong a, slong b) { return res[static_cast<std::size_t>((a * n + b) * np + ip)]; }, k,
+              primes_[static_cast<std::size_t>(ip)], decoupled))
+        return false;
+      for (slong i = 0; i <= k; ++i)
+        qres[static_cast<std::size_t>(i * np + ip)] = gq[static_cast<std::size_t>(i)];
+    }
+    fmpz_poly_zero(q);
+    Fmpz c;
+    for (slong i = 0; i <= k; ++i) {
+      fmpz_multi_CRT_ui(c.v, qres.data() + i * np, comb_, temp_, 1);
+      fmpz_poly_set_coeff_fmpz(q, i, c.v);
+    }
+    // Guard prime, through the full 2k x 2k route.
+    const mp_limb_t pg = primes_[static_cast<std::size_t>(np)];
+    if (!charpoly_mod(
+            gq, [&](slong a, slong b) { return fmpz_fdiv_ui(fmpz_mat_entry(G, a, b), pg); }, k, pg, false))
+      return false;
+    for (slong i = 0; i <= k; ++i) {
+      fmpz_poly_get_coeff_fmpz(c.v, q, i);
+      if (fmpz_fdiv_ui(c.v, pg) != gq[static_cast<std::size_t>(i)]) return false;
+    }
+    return fmpz_poly_degree(q) == k && fmpz_is_one(fmpz_poly_lead(q));
+  }
+
+ private:
+  // q mod p from G mod p (entry(a, b)): the even part of charpoly(J G) with
+  // its sign, or (decoupled) charpoly(Z X) with X, Z the diagonal blocks.
+  template <class Entry>
+  static bool charpoly_mod(std::vector<mp_limb_t>& out, Entry entry, slong k, mp_limb_t p, bool decoupled) {
+    const slong n = 2 * k;
+    bool ok = true;
+    nmod_poly_t cp;
+    nmod_poly_init(cp, p);
+    if (decoupled) {
+      nmod_mat_t X, Z, ZX;
+      nmod_mat_init(X, k, k, p);
+      nmod_mat_init(Z, k, k, p);
+      nmod_mat_init(ZX, k, k, p);
+      for (slong i = 0; i < k; ++i)
+        for (slong j = 0; j < k; ++j) {
+          nmod_mat_entry(X, i, j) = entry(i, j);
+          nmod_mat_entry(Z, i, j) = entry(i + k, j + k);
+        }
+      nmod_mat_mul(ZX, Z, X);
+      nmod_mat_charpoly(cp, ZX);
+      ok = nmod_poly_degree(cp) == k;
+      for (slong i = 0; i <= k && ok; ++i) out[static_cast<std::size_t>(i)] = nmod_poly_get_coeff_ui(cp, i);
+      nmod_mat_clear(ZX);
+      nmod_mat_clear(Z);
+      nmod_mat_clear(X);
+    } else {
+      nmod_mat_t A;
+      nmod_mat_init(A, n, n, p);
+      for (slong i = 0; i < k; ++i)
+        for (slong j = 0; j < n; ++j) {
+          nmod_mat_entry(A, i, j) = entry(i + k, j);
+          nmod_mat_entry(A, i + k, j) = nmod_neg(entry(i, j), A->mod);
+        }
+      nmod_mat_charpoly(cp, A);
+      ok = nmod_poly_degree(cp) == n;
+      for (slong i = 0; i <= k && ok; ++i) {
+        mp_limb_t v = nmod_poly_get_coeff_ui(cp, 2 * i);
+        if ((k + i) % 2 != 0) v = nmod_neg(v, A->mod);
+        out[static_cast<std::size_t>(i)] = v;
+        if (i < k && nmod_poly_get_coeff_ui(cp, 2 * i + 1) != 0) ok = false;  // must be even
+      }
+      nmod_mat_clear(A);
+    }
+    nmod_poly_clear(cp);
+    return ok;
+  }
+
+  void ensure_primes(slong count) {
+    while (static_cast<slong>(primes_.size()) < count)
+      primes_.push_back(n_nextprime(primes_.empty() ? (UWORD(1) << 62) : primes_.back(), 1));
+  }
+  void set_comb(slong np) {
+    if (comb_np_ == np) return;
+    drop_comb();
+    fmpz_comb_init(comb_, primes_.data(), np);
+    fmpz_comb_temp_init(temp_, comb_);
+    comb_np_ = np;
+  }
+  void drop_comb() {
+    if (comb_np_ == 0) return;
+    fmpz_comb_temp_clear(temp_);
+    fmpz_comb_clear(comb_);
+    comb_np_ = 0;
+  }
+
+  std::vector<mp_limb_t> primes_;
+  fmpz_comb_t comb_;
+  fmpz_comb_temp_t temp_;
+  slong comb_np_ = 0;
+};
+
+// Certified enclosures of the d roots of a squarefree integer polynomial f
+// whose roots are all real and positive (here z_j = mu_j^2 - Den^2 > 0), each
+// to at least `target_bits` relative bits, written to roots (imaginary parts
+// exactly 0). The roots span hundreds of orders of magnitude, which makes
+// generic starting points (as in arb_fmpz_poly_complex_roots) very slow, so
+// the starting points come from the Newton polygon of f (|z| ~ 2^-slope on
+// each edge, spread on a circle as in Bini's method); arb then refines them
+// (Durand-Kerner sweeps), isolates them rigorously
+// (_acb_poly_validate_roots) and proves them real
+// (_acb_poly_validate_real_roots). Returns false if that did not succeed
+// within max_tries precision doublings, or if a root is not real (which theory
+// excludes); the caller then uses arb_fmpz_poly_complex_roots.
+bool positive_real_roots(acb_ptr roots, const fmpz_poly_t f, slong target_bits, int max_tries) {
+  const slong d = fmpz_poly_degree(f), len = d + 1;
+  if (d < 1) return false;
+  std::vector<double> l(static_cast<std::size_t>(len));
+  for (slong i = 0; i < len; ++i) {
+    const fmpz* c = fmpz_poly_get_coeff_ptr(f, i);
+    if (fmpz_is_zero(c)) return false;  // impossible with all roots > 0
+    slong e = 0;
+    const double m = fmpz_get_d_2exp(&e, c);
+    l[static_cast<std::size_t>(i)] = std::log2(std::fabs(m)) + static_cast<double>(e);
+  }
+  // Upper convex hull of (i, log2 |f_i|).
+  std::vector<slong> hull;
+  for (slong i = 0; i < len; ++i) {
+    while (hull.size() >= 2) {
+      const slong a = hull[hull.size() - 2], b = hull.back();
+      const double la = l[static_cast<std::size_t>(a)], lb = l[static_cast<std::size_t>(b)],
+                   lc = l[static_cast<std::size_t>(i)];
+      if ((lb - la) * static_cast<double>(i - a) <= (lc - la) * static_cast<double>(b - a))
+        hull.pop_back();
+      else
+        break;
+    }
+    hull.push_back(i);
+  }
+  AcbVec init(d), poly(len), prev(d);
+  Acb step;
+  Mag ms, mr;
+  {
+    slong idx = 0;
+    Arb re, im;
+    for (std::size_t h = 0; h + 1 < hull.size(); ++h) {
+      const slong a = hull[h], b = hull[h + 1], m = b - a;
+      const double log2r =
+          (l[static_cast<std::size_t>(a)] - l[static_cast<std::size_t>(b)]) / static_cast<double>(m);
+      const double fl = std::floor(log2r);
+      for (slong j = 0; j < m; ++j) {
+        const double th = 2 * std::numbers::pi * static_cast<double>(j) / static_cast<double>(m) + 0.4;
+        const double sc = std::exp2(log2r - fl);
+        arb_set_d(re.v, sc * std::cos(th));
+        arb_set_d(im.v, sc * std::sin(th));
+        arb_mul_2exp_si(re.v, re.v, static_cast<slong>(fl));
+        arb_mul_2exp_si(im.v, im.v, static_cast<slong>(fl));
+        acb_set_arb_arb(init.p + idx, re.v, im.v);
+        ++idx;
+      }
+    }
+    if (idx != d) return false;
+  }
+  for (slong prec = target_bits + 32, tries = 0; tries < max_tries; prec *= 2, ++tries) {
+    for (slong i = 0; i < len; ++i) acb_set_round_fmpz(poly.p + i, fmpz_poly_get_coeff_ptr(f, i), prec);
+    // Durand-Kerner sweeps until every root moved by < 2^(16-prec) relative
+    // (_acb_poly_find_roots stops on an absolute criterion, which leaves the
+    // small roots of such wide-range polynomials unconverged).
+    for (slong i = 0; i < d; ++i) acb_set(roots + i, init.p + i);
+    for (slong it = 0; it < 40 + 10 * d; ++it) {
+      for (slong i = 0; i < d; ++i) acb_get_mid(prev.p + i, roots + i);
+      _acb_poly_refine_roots_durand_kerner(roots, poly.p, len, prec);
+      bool moved = false;
+      for (slong i = 0; i < d && !moved; ++i) {
+        acb_sub(step.v, roots + i, prev.p + i, prec);
+        acb_get_mag(ms.v, step.v);
+        acb_get_mag_lower(mr.v, roots + i);
+        mag_mul_2exp_si(mr.v, mr.v, 16 - prec);
+        moved = mag_cmp(ms.v, mr.v) > 0;
+      }
+      if (!moved) break;
+    }
+    const slong isolated = _acb_poly_validate_roots(roots, poly.p, len, prec);
+    // As in arb_fmpz_poly_complex_roots: with all roots isolated,
+    // _acb_poly_validate_real_roots proves that each enclosure meeting the
+    // real line holds a real root; then its imaginary part is exactly 0.
+    bool ok = isolated == d && _acb_poly_validate_real_roots(roots, poly.p, len, prec);
+    for (slong i = 0; i < d && ok; ++i)
+      if (!arb_contains_zero(acb_imagref(roots + i))) ok = false;  // non-real: leave to the fallback
+    for (slong i = 0; i < d && ok; ++i)
+      if (!arb_is_positive(acb_realref(roots + i)) ||
+          arb_rel_accuracy_bits(acb_realref(roots + i)) < target_bits)
+        ok = false;
+    if (ok) {
+      for (slong i = 0; i < d; ++i) arb_zero(acb_imagref(roots + i));
+      return true;
+    }
+    for (slong i = 0; i < d; ++i) acb_get_mid(init.p + i, roots + i);  // restart from here
+  }
+  return false;
+}
+
+// Symplectic spectrum and entropy of sigma_A(t) = G / (2 Den), t = 0, 1, ...
+// in order. Besides the answer it keeps upper bounds Y_j >= mu_j(t)^2 for the
+// next step's coefficient bound (see coefficient_bound_bits).
+class SpectrumSolver {
+ public:
+  SpectrumSolver(std::int64_t k, const fmpz_t den, const arb_t growth2) : k_(k) {
+    fmpz_mul(den2_.v, den, den);
+    fmpz_mul_ui(c4_.v, den2_.v, 4);
+    arb_set(growth2_.v, growth2);
+  }
+
+  std::int64_t fallbacks() const { return fallbacks_; }
+  std::int64_t root_fallbacks() const { return root_fallbacks_; }
+
+  PointResult evaluate(const fmpz_mat_t G, const EntropyOptions& opt) {
+    PointResult out;
+    const slong k = k_;
+    if (k == 0) return out;
+    FmpzPoly q;
+    if (opt.reference) {
+      flint_charpoly(q.p, G);
+    } else if (!ModularOK(q.p, G)) {
+      // The guard prime disagreed (a wrong bound would be a bug): recompute
+      // with FLINT's own Hadamard-bounded modular characteristic polynomial.
+      ++fallbacks_;
+      flint_charpoly(q.p, G);
+    }
+    // Q(z) = q(z + Den^2): roots z_j = mu_j^2 - Den^2 = 4 Den^2 (nu_j^2 - 1/4) >= 0.
+    FmpzPoly Q;
+    fmpz_poly_taylor_shift(Q.p, q.p, den2_.v);
+    // nu = 1/2 exactly <=> z = 0: split off z^m symbolically.
+    slong m = 0;
+    while (m <= k && fmpz_is_zero(fmpz_poly_get_coeff_ptr(Q.p, m))) ++m;
+    if (m > k) throw std::logic_error("gaussian_entropy_curve: zero characteristic polynomial");
+    out.pure = m;
+    fmpz_poly_shift_right(Q.p, Q.p, m);
+    std::vector<ModeBall> nus(static_cast<std::size_t>(m), ModeBall{0.5, 0.0});
+    // Next step's bounds: Den^2 for each pure mode.
+    std::vector<std::unique_ptr<Arb>> Y;
+    for (slong i = 0; i < m; ++i) {
+      Y.push_back(std::make_unique<Arb>());
+      arb_set_fmpz(Y.back()->v, den2_.v);
+    }
+    if (fmpz_poly_degree(Q.p) <= 0) {
+      out.prec = 0;
+      if (opt.keep_spectrum) out.nu = std::move(nus);
+      set_bounds(std::move(Y));
+      return out;
+    }
+    // Squarefree parts (poly, multiplicity). Generically Q itself is
+    // squarefree: that is proven when all its roots come out isolated, so the
+    // (costly, big-coefficient) squarefree factorisation is done only when
+    // that fails or for the reference path.
+    PolyFactor fac;
+    bool factored = false;
+    std::vector<std::pair<const fmpz_poly_struct*, slong>> parts = {{Q.p, 1}};
+    auto factor = [&]() {
+      fmpz_poly_factor_squarefree(fac.f, Q.p);
+      parts.clear();
+      for (slong i = 0; i < fac.f->num; ++i) parts.emplace_back(fac.f->p + i, fac.f->exp[i]);
+      factored = true;
+    };
+    if (opt.reference) factor();
+    // Each root z with relative error 2^-prec moves S by at most ~2^-prec
+    // (mode_entropy): start ~64 bits beyond the mode count, double until the
+    // radius meets the target. arb_fmpz_poly_complex_roots itself raises its
+    // internal precision from the coefficient sizes until the roots are
+    // isolated and refined to `prec` relative bits.
+    slong prec = 64 + 2 * clog2(k + 1);
+    Arb S, f, nu, y;
+    bool have_bounds = false;
+    for (;;) {
+      arb_zero(S.v);
+      bool ok = true;
+      std::vector<std::pair<double, double>> nu_here;
+      std::vector<std::unique_ptr<Arb>> Yr;
+      bool refactored = false;
+      for (std::size_t i = 0; i < parts.size() && ok; ++i) {
+        const fmpz_poly_struct* fi = parts[i].first;
+        const slong mult = parts[i].second;
+        const slong deg = fmpz_poly_degree(fi);
+        if (deg <= 0) continue;
+        AcbVec roots(deg);
+        if (opt.reference) {
+          arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
+        } else if (!positive_real_roots(roots.p, fi, prec, factored ? 5 : 2)) {
+          if (!factored) {  // maybe not squarefree: factor and redo this precision
+            factor();
+            refactored = true;
+            break;
+          }
+          ++root_fallbacks_;
+          arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
+        }
+        for (slong r = 0; r < deg && ok; ++r) {
+          const acb_struct* z = roots.p + r;
+          if (!arb_is_zero(acb_imagref(z)))
+            throw std::logic_error("gaussian_entropy_curve: non-real symplectic eigenvalue (internal error)");
+          if (arb_is_negative(acb_realref(z)))
+            throw std::logic_error(
+                "gaussian_entropy_curve: symplectic eigenvalue below 1/2 (internal error)");
+          if (!arb_is_positive(acb_realref(z))) {
+            ok = false;  // enclosure still touches 0: more precision
+            break;
+          }
+          mode_entropy(f.v, nu.v, acb_realref(z), c4_.v, prec + 32);
+          arb_addmul_si(S.v, f.v, mult, prec + 32);
+          arb_add_fmpz(y.v, acb_realref(z), den2_.v, prec + 32);  // mu^2
+          for (slong e = 0; e < mult; ++e) {
+            Yr.push_back(std::make_unique<Arb>());
+            arb_set(Yr.back()->v, y.v);
+          }
+          if (opt.keep_spectrum) {
+            const auto [mid, rad] = to_double_with_radius(nu.v);
+            for (slong e = 0; e < mult; ++e) nu_here.emplace_back(mid, rad);
+          }
+        }
+      }
+      if (refactored) continue;  // same precision, now on the squarefree parts
+      if (ok) {
+        const auto [mid, rad] = to_double_with_radius(S.v);
+        out.entropy = mid;
+        out.radius = rad;
+        out.prec = prec;
+        // The target is on the enclosure; rounding its midpoint to double
+        // (half an ulp, included in `radius`) cannot be reduced.
+        out.met = mag_get_d(arb_radref(S.v)) <= opt.target_radius;  // rounds up
+        if (opt.keep_spectrum) {
+          out.nu = nus;
+          for (const auto& [a, b] : nu_here) out.nu.push_back(ModeBall{a, b});
+        }
+        std::vector<std::unique_ptr<Arb>> Yall;
+        for (const auto& p : Y) {
+          Yall.push_back(std::make_unique<Arb>());
+          arb_set(Yall.back()->v, p->v);
+        }
+        for (auto& p : Yr) Yall.push_back(std::move(p));
+        set_bounds(std::move(Yall));
+        have_bounds = true;
+        if (out.met) break;
+      } else if (!have_bounds) {
+        // No certified enclosure yet (a root ball still touches z = 0).
+        out.met = false;
+        out.entropy = std::nan("");
+        out.radius = INFINITY;
+        out.prec = prec;
+      }
+      if (2 * prec > opt.max_prec_bits) break;
+      prec *= 2;
+    }
+    if (!have_bounds) Yprev_.clear();  // next step falls back to Hadamard-Fischer
+    if (opt.keep_spectrum)
+      std::sort(out.nu.begin(), out.nu.end(),
+                [](const ModeBall& a, const ModeBall& b) { return a.mid > b.mid; });
+    return out;
+  }
+
+ private:
+  bool ModularOK(fmpz_poly_t q, const fmpz_mat_t G) {
+    return modular_.even_charpoly(q, G, k_, coefficient_bound_bits(G));
+  }
+
+  void flint_charpoly(fmpz_poly_t q, const fmpz_mat_t G) {
+    const slong k = k_, n = 2 * k;
+    // JG with J = [[0, I], [-I, 0]].
+    FmpzMat JG(n, n);
+    for (slong i = 0; i < k; ++i)
+      for (slong j = 0; j < n; ++j) {
+        fmpz_set(fmpz_mat_entry(JG.m, i, j), fmpz_mat_entry(G, i + k, j));
+        neg(fmpz_mat_entry(JG.m, i + k, j), fmpz_mat_entry(G, i, j));
+      }
+    FmpzPoly cp;
+    fmpz_mat_charpoly(cp.p, JG.m);
+    fmpz_poly_zero(q);
+    Fmpz c;
+    for (slong i = 0; i <= k; ++i) {
+      fmpz_poly_get_coeff_fmpz(c.v, cp.p, 2 * i);
+      if ((k + i) % 2 != 0) neg(c.v, c.v);
+      fmpz_poly_set_coeff_fmpz(q, i, c.v);
+      if (i < k) {
+        fmpz_poly_get_coeff_fmpz(c.v, cp.p, 2 * i + 1);
+        if (!fmpz_is_zero(c.v))
+          throw std::logic_error(
+              "gaussian_entropy_curve: characteristic polynomial of J sigma_A is not even");
+      }
+    }
+  }
+
+  // A rigorous e with |q_i| < 2^e for all coefficients of
+  // q(y) = prod_j (y - mu_j^2), q_{k-i} = (-1)^i e_i(mu^2), as the smaller of
+  //  (a) Hadamard-Fischer: e_i(mu^2) = |E_{2i}(JG)| (sum of principal minors)
+  //      <= e_{2i}(singular values of JG) = e_{2i}(eig G) <= e_{2i}(diag G)
+  //      (J is orthogonal; G is positive definite);
+  //  (b) growth: G(t) <= g G(t-1) in the Loewner order with g = ||D^-1/2 S D^1/2||_2^2,
+  //      and symplectic eigenvalues are monotone and homogeneous (Bhatia & Jain,
+  //      J. Math. Phys. 56, 112201 (2015)), so mu_j(t)^2 <= g^2 Y_j with Y_j the
+  //      sorted upper bounds of mu_j(t-1)^2: e_i(mu^2) <= e_i(g^2 Y).
+  slong coefficient_bound_bits(const fmpz_mat_t G) {
+    const slong k = k_, n = 2 * k, wp = 64;
+    std::vector<Arb> diag(static_cast<std::size_t>(n));
+    std::vector<const arb_struct*> dp;
+    for (slong a = 0; a < n; ++a) {
+      arb_set_fmpz(diag[static_cast<std::size_t>(a)].v, fmpz_mat_entry(G, a, a));
+      dp.push_back(diag[static_cast<std::size_t>(a)].v);
+    }
+    std::vector<Arb> eh;
+    elementary_symmetric(eh, dp, wp);
+    std::vector<Arb> eg;
+    const bool grow = static_cast<slong>(Yprev_.size()) == k;
+    std::vector<Arb> gy(static_cast<std::size_t>(k));
+    if (grow) {
+      std::vector<const arb_struct*> yp;
+      for (slong j = 0; j < k; ++j) {
+        arb_mul(gy[static_cast<std::size_t>(j)].v, Yprev_[static_cast<std::size_t>(j)]->v, growth2_.v, wp);
+        yp.push_back(gy[static_cast<std::size_t>(j)].v);
+      }
+      elementary_symmetric(eg, yp, wp);
+    }
+    slong e = 1;
+    Arf ub, ub2;
+    for (slong i = 0; i <= k; ++i) {
+      arb_get_ubound_arf(ub.v, eh[static_cast<std::size_t>(2 * i)].v, wp);
+      if (grow) {
+        arb_get_ubound_arf(ub2.v, eg[static_cast<std::size_t>(i)].v, wp);
+        if (arf_cmp(ub2.v, ub.v) < 0) arf_set(ub.v, ub2.v);
+      }
+      if (!arf_is_finite(ub.v))
+        throw std::logic_error("gaussian_entropy_curve: non-finite coefficient bound");
+      e = std::max(e, arf_abs_bound_lt_2exp_si(ub.v) + 1);
+    }
+    return e;
+  }
+
+  // Keeps the upper ends of the balls Y (each >= the exact mu_j^2), sorted
+  // descending: the j-th largest upper end bounds the j-th largest mu^2.
+  void set_bounds(std::vector<std::unique_ptr<Arb>> Y) {
+    std::vector<Arf> ups(Y.size());
+    for (std::size_t j = 0; j < Y.size(); ++j) arb_get_ubound_arf(ups[j].v, Y[j]->v, 64);
+    std::vector<std::size_t> idx(Y.size());
+    std::iota(idx.begin(), idx.end(), std::size_t{0});
+    std::sort(idx.begin(), idx.end(),
+              [&](std::size_t a, std::size_t b) { return arf_cmp(ups[a].v, ups[b].v) > 0; });
+    std::vector<std::unique_ptr<Arb>> U;
+    for (std::size_t j : idx) {
+      U.push_back(std::make_unique<Arb>());
+      arb_set_arf(U.back()->v, ups[j].v);
+    }
+    Yprev_ = std::move(U);
+  }
+
+  std::int64_t k_;
+  Fmpz den2_, c4_;
+  Arb growth2_;  // upper bound of g^2
+  std::vector<std::unique_ptr<Arb>> Yprev_;
+  ModularCharpoly modular_;
+  std::int64_t fallbacks_ = 0;
+  std::int64_t root_fallbacks_ = 0;
+};
+
+// An upper bound of g^2, g = ||X||_2^2 with X = D^-1/2 S D^1/2
+// (X_ij = S_ij sqrt(D_j / D_i)): ||X||_2^2 <= ||X||_1 ||X||_inf.
+void growth_bound(arb_t g2, const SparseInt& S, const Problem& pr) {
+  const slong wp = 64;
+  const std::int64_t n = S.n;
+  std::vector<Arb> rows(static_cast<std::size_t>(n)), cols(static_cast<std::size_t>(n));
+  Arb x, r;
+  for (std::int64_t i = 0; i < n; ++i)
+    for (std::int64_t e = S.rowptr[i]; e < S.rowptr[i + 1]; ++e) {
+      const std::int64_t j = S.col[e];
+      arb_set_fmpz(x.v, pr.D[static_cast<std::size_t>(j)].v);
+      arb_div_fmpz(x.v, x.v, pr.D[static_cast<std::size_t>(i)].v, wp);
+      arb_sqrt(x.v, x.v, wp);
+      const std::int64_t v = S.val[e] < 0 ? -S.val[e] : S.val[e];
+      arb_mul_ui(x.v, x.v, static_cast<ulong>(v), wp);
+      arb_add(rows[static_cast<std::size_t>(i)].v, rows[static_cast<std::size_t>(i)].v, x.v, wp);
+      arb_add(cols[static_cast<std::size_t>(j)].v, cols[static_cast<std::size_t>(j)].v, x.v, wp);
+    }
+  Arf mr, mc, u;
+  arf_zero(mr.v);
+  arf_zero(mc.v);
+  for (std::int64_t i = 0; i < n; ++i) {
+    arb_get_ubound_arf(u.v, rows[static_cast<std::size_t>(i)].v, wp);
+    if (arf_cmp(u.v, mr.v) > 0) arf_set(mr.v, u.v);
+    arb_get_ubound_arf(u.v, cols[static_cast<std::size_t>(i)].v, wp);
+    if (arf_cmp(u.v, mc.v) > 0) arf_set(mc.v, u.v);
+  }
+  arb_set_arf(g2, mr.v);
+  arb_set_arf(r.v, mc.v);
+  arb_mul(g2, g2, r.v, wp);  // g <= ||X||_1 ||X||_inf
+  arb_mul(g2, g2, g2, wp);   // g^2
+}
+
+}  // namespace
+
+EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<GaussianSite>& init,
+                                    const std::vector<std::int64_t>& region, std::int64_t T,
+                                    const EntropyOptions& opt) {
+  if (T < 0)
+    throw std::invalid_argument("gaussian_entropy_curve: T = " + std::to_string(T) + " must be >= 0");
+  if (!(opt.target_radius > 0.0))
+    throw std::invalid_argument("gaussian_entropy_curve: target_radius must be > 0");
+  if (opt.max_prec_bits < 64)
+    throw std::invalid_argument("gaussian_entropy_curve: max_prec_bits must be >= 64");
+  if (c.L < 1) throw std::invalid_argument("gaussian_entropy_curve: circuit has L = " + std::to_string(c.L));
+  if (static_cast<std::int64_t>(init.size()) != c.L)
+    throw std::invalid_argument("gaussian_entropy_curve: " + std::to_string(init.size()) +
+                                " initial sites for L = " + std::to_string(c.L));
+  Problem pr;
+  pr.L = c.L;
+  pr.k = static_cast<std::int64_t>(region.size());
+  {
+    std::vector<char> seen(static_cast<std::size_t>(c.L), 0);
+    for (std::int64_t a : region) {
+      if (a < 0 || a >= c.L)
+        throw std::invalid_argument("gaussian_entropy_curve: region site " + std::to_string(a) +
+                                    " is outside [0, " + std::to_string(c.L) + ")");
+      if (seen[static_cast<std::size_t>(a)])
+        throw std::invalid_argument("gaussian_entropy_curve: region site " + std::to_string(a) +
+                                    " is repeated");
+      seen[static_cast<std::size_t>(a)] = 1;
+    }
+  }
+  build_sigma0(pr, init);
+  const SparseInt S = assemble_period(c);  // validates the circuit (ModelError)
+  for (std::int64_t a : region) pr.rows.push_back(a);
+  for (std::int64_t a : region) pr.rows.push_back(c.L + a);
+
+  EntropyCurve out;
+  const std::size_t nt = static_cast<std::size_t>(T) + 1;
+  out.entropy.reserve(nt);
+  out.radius.reserve(nt);
+  out.bits.reserve(nt);
+  out.columns.reserve(nt);
+  out.pure_modes.reserve(nt);
+  out.prec_bits.reserve(nt);
+  out.met_target.reserve(nt);
+  if (opt.keep_spectrum) {
+    out.nu.reserve(nt);
+    out.nu_radius.reserve(nt);
+  }
+  LightCone lc(pr, S);
+  FmpzMat G(2 * pr.k, 2 * pr.k);
+  Arb g2;
+  growth_bound(g2.v, S, pr);
+  SpectrumSolver solver(pr.k, pr.den.v, g2.v);
+  for (std::int64_t t = 0; t <= T; ++t) {
+    if (t > 0) lc.step();
+    lc.gram(G.m);
+    PointResult r = solver.evaluate(G.m, opt);
+    out.entropy.push_back(r.entropy);
+    out.radius.push_back(r.radius);
+    out.bits.push_back(lc.bits());
+    out.columns.push_back(lc.columns());
+    out.pure_modes.push_back(r.pure);
+    out.prec_bits.push_back(r.prec);
+    out.met_target.push_back(r.met ? 1 : 0);
+    if (!r.met) ++out.failures;
+    if (opt.keep_spectrum) {
+      std::vector<double> mid, rad;
+      for (const ModeBall& b : r.nu) {
+        mid.push_back(b.mid);
+        rad.push_back(b.rad);
+      }
+      out.nu.push_back(std::move(mid));
+      out.nu_radius.push_back(std::move(rad));
+    }
+  }
+  out.charpoly_fallbacks = solver.fallbacks();
+  out.root_fallbacks = solver.root_fallbacks();
+  return out;
+}
+
+}  // namespace toral
