@@ -9,6 +9,9 @@
 namespace toral {
 
 namespace {
+// Exponents closer than this (relative) to lambda_max count as one cluster.
+constexpr double kClusterTolerance = 1e-8;
+
 bool translation_invariant_spec(const SweepSpec& s) { return !s.bond.drawn() && !s.site.drawn(); }
 
 std::int64_t dense_dim(const SweepSpec& s, std::int64_t L) {
@@ -75,8 +78,25 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
     if (m == Method::None) {
       fail(PointStatus::NoMethod, "no spectrum method: " + why);
     } else {
+      const auto ts = std::chrono::steady_clock::now();
       const Spectrum sp = m == Method::Bloch ? bloch_spectrum(circ) : dense_spectrum(circ);
+      r.solver_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - ts).count();
+      r.solver = static_cast<std::int32_t>(m == Method::Bloch ? SolverCode::BlochExact : SolverCode::Lapack);
+      r.solver_converged = static_cast<std::int64_t>(sp.exponents.size());
+      r.solver_ranks = 1;
       const ChaosSummary cs = summarize(sp, circ.L, c.spectrum.summary);
+      for (std::size_t i = 0; i < cs.kept.size(); ++i)
+        r.exponent_errors.push_back(sp.errors.size() == sp.exponents.size() ? sp.errors[i] : sp.error_bound);
+      // The top cluster: exponents within the tolerance of lambda_max.
+      const double ctol = kClusterTolerance * std::max(1.0, std::fabs(cs.lambda_max));
+      r.cluster_count = 0;
+      double lowest = cs.lambda_max;
+      for (double x : sp.exponents) {
+        if (cs.lambda_max - x > ctol) break;
+        ++r.cluster_count;
+        lowest = x;
+      }
+      r.cluster_spread = cs.lambda_max - lowest;
       r.lambda_max = cs.lambda_max;
       r.ks_rate = cs.ks_rate;
       r.ks_density = cs.ks_density;

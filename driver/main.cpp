@@ -10,6 +10,8 @@
 #include "compute.hpp"
 #include "config.hpp"
 #include "default_config.hpp"
+#include "jobscript.hpp"
+#include "merge.hpp"
 #include "report.hpp"
 #include "result_file.hpp"
 #include "run.hpp"
@@ -65,10 +67,25 @@ void write_matrix_market(const std::string& path, const toral::SparseInt& m) {
   if (!out) throw std::runtime_error(path + ": write failed");
 }
 
+// "--shard i/n" -> (i, n); ConfigError for anything else.
+std::pair<std::int64_t, std::int64_t> parse_shard(const std::string& s) {
+  const auto slash = s.find('/');
+  try {
+    if (slash != std::string::npos) {
+      std::size_t a = 0, b = 0;
+      const long long i = std::stoll(s.substr(0, slash), &a), n = std::stoll(s.substr(slash + 1), &b);
+      if (a == slash && b == s.size() - slash - 1 && n >= 1 && i >= 0 && i < n) return {i, n};
+    }
+  } catch (const std::exception&) {
+  }
+  throw toral::ConfigError("--shard: \"" + s + "\" is not i/n with 0 <= i < n");
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
-  MPI_Init(&argc, &argv);
+  int provided = 0;
+  MPI_Init_thread(&argc, &argv, MPI_THREAD_FUNNELED, &provided);
   if (openblas_set_num_threads) openblas_set_num_threads(1);  // one BLAS thread per rank
   int rank = 0;
   MPI_Comm_rank(MPI_COMM_WORLD, &rank);
@@ -78,18 +95,48 @@ int main(int argc, char** argv) {
   app.set_version_flag("--version", std::string("toral ") + TORAL_VERSION);
   app.require_subcommand(1);
 
-  std::string config_path, output, matrix_path;
-  bool overwrite = false, quiet = false, json = false, block = false;
+  std::string config_path, output, matrix_path, script_path, shard;
+  bool overwrite = false, quiet = false, json = false, block = false, resume = false;
   long long index = 0;
+  double checkpoint = 60.0, progress_every = -1.0, memory_gb = 4.0;
+  std::vector<std::string> merge_inputs;
+  toral::JobscriptOptions js;
 
   auto* run = app.add_subcommand("run", "Run a sweep (the embedded default when no CONFIG is given) into an HDF5 file");
   run->add_option("config", config_path, "TOML sweep configuration");
   run->add_option("-o,--output", output, "HDF5 result file to create")->required();
   run->add_flag("--overwrite", overwrite, "Replace an existing result file (only once the new one is complete)");
   run->add_flag("-q,--quiet", quiet, "No progress lines");
+  run->add_flag("--resume", resume,
+                "Finish an interrupted run into the same file (its journal or checkpoint); starts afresh if neither exists");
+  run->add_option("--shard", shard, "Run only the points with index % n == i, into their own file (i/n, 0 <= i < n)");
+  run->add_option("--checkpoint", checkpoint, "Seconds between checkpoints of the result file (default 60)");
+  run->add_option("--progress-every", progress_every,
+                  "Seconds between progress lines (default: 0.5 on a terminal, 30 in batch logs)");
 
   auto* check = app.add_subcommand("check", "Validate a configuration, count its points, estimate the cost");
   check->add_option("config", config_path, "TOML sweep configuration")->required();
+  check->add_option("--memory-per-rank", memory_gb, "Memory per rank in GiB; refuse points that need more (default 4)");
+
+  auto* merge = app.add_subcommand("merge", "Combine the shard files of one run into one result file");
+  merge->add_option("output", output, "Result file to create")->required();
+  merge->add_option("shards", merge_inputs, "Shard files (from run --shard i/n)")->required();
+  merge->add_flag("--overwrite", overwrite, "Replace an existing output file");
+
+  auto* job = app.add_subcommand("jobscript", "Write a batch script (Slurm or PBS) that runs a config with resume and requeue");
+  job->add_option("config", js.config, "TOML sweep configuration (as the job will see it)")->required();
+  job->add_option("-o,--output", js.output, "Result file of the job")->required();
+  job->add_option("--scheduler", js.scheduler, "slurm (default) or pbs");
+  job->add_option("--ranks", js.ranks, "MPI ranks (default 16)");
+  job->add_option("--walltime", js.walltime, "[D-]HH:MM:SS (default 01:00:00)");
+  job->add_option("--partition,--queue", js.partition, "Slurm partition / PBS queue");
+  job->add_option("--account", js.account, "Account to charge");
+  job->add_option("--job-name", js.job_name, "Job name (default toral)");
+  job->add_option("--shards", js.shards, "Array job of this many shards (default 1: no array)");
+  job->add_option("--signal-lead", js.signal_lead, "Seconds before the walltime to stop and checkpoint (default 300)");
+  job->add_option("--checkpoint", js.checkpoint, "Seconds between checkpoints (default 300)");
+  job->add_option("--toral", js.toral, "Path of the toral binary on the cluster (default: toral on PATH)");
+  job->add_option("--script", script_path, "Write the script to this file instead of standard output");
 
   auto* point = app.add_subcommand("point", "Compute one point and print it");
   point->add_option("config", config_path, "TOML sweep configuration ('-' for the embedded default)")->required();
@@ -110,15 +157,35 @@ int main(int argc, char** argv) {
   try {
     if (*run) {
       const toral::Config cfg = load_everywhere(comm, config_path);
-      toral::check_output_target(comm, output, overwrite);  // before any computation
-      toral::RunOptions o{output, overwrite, quiet};
+      toral::RunOptions o;
+      o.output = output;
+      o.overwrite = overwrite;
+      o.quiet = quiet;
+      o.resume = resume;
+      o.checkpoint_seconds = checkpoint;
+      o.progress_seconds = progress_every;
+      if (!shard.empty()) std::tie(o.shard_index, o.shard_count) = parse_shard(shard);
+      // before any computation; a resumed run replaces its own checkpoint
+      toral::check_output_target(comm, output, overwrite || resume);
       const auto outcome = toral::run_sweep(comm, cfg, o);
       if (rank == 0 && outcome.failed > 0)
         std::fprintf(stderr, "toral: warning: %lld of %lld points failed; see /points/status and /points/message\n",
                      static_cast<long long>(outcome.failed), static_cast<long long>(outcome.points));
     } else if (*check) {
       const toral::Config cfg = load_everywhere(comm, config_path);
-      if (rank == 0) toral::print_check(std::cout, cfg);
+      if (rank == 0) toral::print_check(std::cout, cfg, memory_gb);
+    } else if (*merge) {
+      if (rank == 0) toral::merge_results(merge_inputs, output, overwrite);  // serial
+    } else if (*job) {
+      if (rank == 0) {
+        const std::string text = toral::make_jobscript(js);
+        if (script_path.empty()) {
+          std::cout << text;
+        } else {
+          std::ofstream f(script_path);
+          if (!(f << text)) throw toral::ConfigError(script_path + ": cannot write the script");
+        }
+      }
     } else if (*point) {
       const toral::Config cfg = load_everywhere(comm, config_path == "-" ? "" : config_path);
       const auto n = toral::point_count(cfg);

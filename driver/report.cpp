@@ -1,6 +1,8 @@
 #include "report.hpp"
 
 #include <algorithm>
+#include <chrono>
+#include <tuple>
 #include <cmath>
 #include <cstdio>
 #include <iomanip>
@@ -8,6 +10,7 @@
 #include <map>
 #include <sstream>
 
+#include "bloch.hpp"
 #include "compute.hpp"
 
 namespace toral {
@@ -55,7 +58,7 @@ std::string json_array(const std::vector<double>& v) {
 }  // namespace
 
 void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const std::vector<PointRecord>& local,
-                       std::int64_t total, double seconds, const std::string& output) {
+                       std::int64_t total, double seconds, const std::string& output, double busy) {
   int rank = 0, size = 1;
   MPI_Comm_rank(comm, &rank);
   MPI_Comm_size(comm, &size);
@@ -80,6 +83,9 @@ void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const 
     all.resize(static_cast<std::size_t>(off));
   }
   MPI_Gatherv(mine.data(), n, MPI_DOUBLE, all.data(), counts.data(), displs.data(), MPI_DOUBLE, 0, comm);
+  double busy_sum = 0.0, busy_max = 0.0;
+  MPI_Reduce(&busy, &busy_sum, 1, MPI_DOUBLE, MPI_SUM, 0, comm);
+  MPI_Reduce(&busy, &busy_max, 1, MPI_DOUBLE, MPI_MAX, 0, comm);
   if (rank != 0) return;
 
   struct Row {
@@ -119,6 +125,9 @@ void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const 
   for (const auto& r : rows) failed += r.failed;
   std::printf("\n%lld points (%lld failed) on %d rank%s in %.2f s -> %s\n", static_cast<long long>(total), failed,
               size, size == 1 ? "" : "s", seconds, output.c_str());
+  if (busy_sum > 0)
+    std::printf("load balance: ranks computed %.1f%% of %d x %.2f s (busiest rank %.2f s)\n",
+                100.0 * busy_sum / (size * std::max(seconds, 1e-9)), size, seconds, busy_max);
   std::fflush(stdout);
 }
 
@@ -191,36 +200,121 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
        << std::setw(14) << num(r.ehrenfest_time[j], 6) << "\n";
 }
 
-void print_check(std::ostream& os, const Config& c) {
+namespace {
+
+struct Probe {
+  double dense_flops_per_s = 1e9;  // dgeevx, with condition numbers
+  double bloch_s_per_site = 1e-6;
+  double bulk_s = 0.0;
+};
+
+// Times one small dense solve and one Bloch ring on this machine.
+Probe calibrate(bool bulk) {
+  using clk = std::chrono::steady_clock;
+  Probe p;
+  const std::int64_t n = 160;
+  std::vector<double> a(static_cast<std::size_t>(n * n));
+  for (std::size_t i = 0; i < a.size(); ++i) a[i] = std::sin(0.37 * static_cast<double>(i) + 0.11);
+  auto t0 = clk::now();
+  (void)dense_eigenvalues(a, n);
+  const double td = std::chrono::duration<double>(clk::now() - t0).count();
+  p.dense_flops_per_s = 30.0 * n * n * n / std::max(td, 1e-6);
+  Circuit ring;
+  ring.L = 20000;
+  Mat2 cat;
+  cat(0, 0) = 2; cat(0, 1) = 1; cat(1, 0) = 1; cat(1, 1) = 1;
+  ring.bonds.assign(static_cast<std::size_t>(ring.L), BondGate::position(cat));
+  t0 = clk::now();
+  (void)bloch_spectrum(ring);
+  p.bloch_s_per_site = std::chrono::duration<double>(clk::now() - t0).count() / static_cast<double>(ring.L);
+  if (bulk) {
+    t0 = clk::now();
+    (void)bulk_limit(ring, 40);
+    p.bulk_s = std::chrono::duration<double>(clk::now() - t0).count();
+  }
+  return p;
+}
+
+std::string bytes_str(double b) {
+  char buf[32];
+  if (b < 1024.0 * 1024)
+    std::snprintf(buf, sizeof buf, "%.0f KiB", b / 1024);
+  else if (b < 1024.0 * 1024 * 1024)
+    std::snprintf(buf, sizeof buf, "%.1f MiB", b / 1024 / 1024);
+  else
+    std::snprintf(buf, sizeof buf, "%.2f GiB", b / 1024 / 1024 / 1024);
+  return buf;
+}
+
+}  // namespace
+
+void print_check(std::ostream& os, const Config& c, double memory_gb) {
   const auto points = expand(c);
-  std::map<int, std::map<std::string, long long>> methods;
-  std::vector<double> flops(c.sweeps.size(), 0.0);
-  std::vector<long long> count(c.sweeps.size(), 0);
+  const Probe probe = calibrate(c.spectrum.bulk_limit);
+  struct Class {
+    long long count = 0;
+    double seconds = 0, bytes = 0, flops = 0;
+  };
+  // (sweep, L, method) -> cost class
+  std::map<std::tuple<int, std::int64_t, std::string>, Class> classes;
   for (const auto& p : points) {
-    const Circuit circ = build_circuit(c, p);
+    const GateSource g = gate_source(c, p);
+    const Circuit circ = materialize(g);
     std::string why;
-    const Method m = choose_method(c, circ, why);
-    ++methods[p.sweep][m == Method::None ? "unsolvable" : method_name(m)];
-    flops[static_cast<std::size_t>(p.sweep)] += estimated_flops(c, p);
-    ++count[static_cast<std::size_t>(p.sweep)];
+    Method m = choose_method(c, circ, why);
+    if (!g.time_periodic) m = Method::None;
+    const std::string name = m == Method::None ? "unsolvable" : method_name(m);
+    Class& k = classes[{p.sweep, p.L, name}];
+    ++k.count;
+    const double L = static_cast<double>(p.L);
+    const double dim = circ.position_class() ? L : 2 * L;
+    const double gates = 400.0 * L;  // gates, exponents and sort buffers
+    if (m == Method::Dense) {
+      k.flops = 30.0 * dim * dim * dim;
+      k.seconds = k.flops / probe.dense_flops_per_s;
+      k.bytes = 4 * 8.0 * dim * dim + gates;  // A, left and right vectors, work
+    } else {
+      k.flops = estimated_flops(c, p);
+      k.seconds = L * probe.bloch_s_per_site + probe.bulk_s;
+      k.bytes = gates;
+    }
   }
   os << c.source << ": valid, " << points.size() << " points in " << c.sweeps.size() << " sweep"
      << (c.sweeps.size() == 1 ? "" : "s") << "\n";
-  double total = 0;
-  for (std::size_t i = 0; i < c.sweeps.size(); ++i) {
-    os << "  " << std::left << std::setw(16) << c.sweeps[i].name << std::right << std::setw(8) << count[i]
-       << " points  ";
-    for (const auto& [name, n] : methods[static_cast<int>(i)]) os << name << ' ' << n << "  ";
-    os << "~" << num(flops[i] / 1e9, 3) << " Gflop\n";
-    total += flops[i];
+  os << "  probe on this machine: dense " << num(probe.dense_flops_per_s / 1e9, 3) << " Gflop/s, bloch "
+     << num(probe.bloch_s_per_site * 1e9, 3) << " ns/site" << "\n";
+  os << "  " << std::left << std::setw(16) << "sweep" << std::right << std::setw(10) << "L" << std::setw(12) << "method"
+     << std::setw(9) << "points" << std::setw(12) << "s/point" << std::setw(12) << "memory" << std::setw(12) << "Gflop" << "\n";
+  double total_s = 0, total_flops = 0, worst = 0;
+  long long unsolvable = 0;
+  std::string worst_where;
+  for (const auto& [key, k] : classes) {
+    const auto& [sw, L, name] = key;
+    os << "  " << std::left << std::setw(16) << c.sweeps[static_cast<std::size_t>(sw)].name << std::right << std::setw(10)
+       << L << std::setw(12) << name << std::setw(9) << k.count << std::setw(12) << num(k.seconds, 3) << std::setw(12)
+       << bytes_str(k.bytes) << std::setw(12) << num(k.flops * k.count / 1e9, 3) << "\n";
+    if (name == "unsolvable") {
+      unsolvable += k.count;
+      continue;
+    }
+    total_s += k.seconds * k.count;
+    total_flops += k.flops * k.count;
+    if (k.bytes > worst) {
+      worst = k.bytes;
+      worst_where = "sweep \"" + c.sweeps[static_cast<std::size_t>(sw)].name + "\": points with L = " +
+                    std::to_string(L) + " (" + name + ")";
+    }
   }
-  // 1 Gflop/s per core is a deliberately pessimistic rate for dgeevx.
-  os << "  rough cost: " << num(total / 1e9, 3) << " Gflop, about " << num(total / 1e9, 3)
-     << " core-seconds at 1 Gflop/s\n";
-  for (const auto& [sw, m] : methods)
-    if (m.count("unsolvable"))
-      os << "  warning: " << m.at("unsolvable") << " points of sweep \"" << c.sweeps[static_cast<std::size_t>(sw)].name
-         << "\" have no spectrum method (too large for dense, not translation-invariant); they will be recorded as failed\n";
+  os << "  total: about " << num(total_s, 3) << " core-seconds (" << num(total_s / 3600, 3) << " core-hours), "
+     << num(total_flops / 1e9, 3) << " Gflop; largest point " << bytes_str(worst) << " of " << num(memory_gb, 3)
+     << " GiB per rank\n";
+  if (unsolvable)
+    os << "  warning: " << unsolvable
+       << " points have no spectrum method (too large for dense and not a clean periodic ring, or redrawn in time); "
+          "they will be recorded as failed\n";
+  if (worst > memory_gb * 1024 * 1024 * 1024)
+    throw ConfigError(c.source + ": " + worst_where + " need about " + bytes_str(worst) + " each, more than " +
+                      "--memory-per-rank " + num(memory_gb, 3) + " GiB (lower spectrum.dense_max or use more memory)");
 }
 
 }  // namespace toral

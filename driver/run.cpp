@@ -1,10 +1,24 @@
 #include "run.hpp"
 
+#include <unistd.h>
+
+#include <algorithm>
+#include <atomic>
 #include <chrono>
 #include <cmath>
+#include <csignal>
 #include <cstdio>
+#include <cstdlib>
+#include <filesystem>
+#include <future>
+#include <map>
+#include <numeric>
+#include <thread>
 
 #include "compute.hpp"
+#include "ensemble.hpp"
+#include "families.hpp"
+#include "journal.hpp"
 #include "report.hpp"
 #include "result_file.hpp"
 #include "sweep.hpp"
@@ -13,45 +27,25 @@ namespace toral {
 
 namespace {
 
-// A global counter of finished points in an MPI window on rank 0, so rank 0
-// can report the whole run's progress while every rank works on its share.
-class ProgressCounter {
- public:
-  explicit ProgressCounter(MPI_Comm comm) : comm_(comm) {
-    MPI_Comm_rank(comm, &rank_);
-    MPI_Win_allocate(rank_ == 0 ? 2 * sizeof(long long) : 0, sizeof(long long), MPI_INFO_NULL, comm,
-                     &base_, &win_);
-    if (rank_ == 0) base_[0] = base_[1] = 0;
-    MPI_Barrier(comm);
-  }
-  ~ProgressCounter() { MPI_Win_free(&win_); }
-  ProgressCounter(const ProgressCounter&) = delete;
-  ProgressCounter& operator=(const ProgressCounter&) = delete;
+volatile std::sig_atomic_t g_stop_signal = 0;
+extern "C" void on_stop_signal(int sig) { g_stop_signal = sig; }
+bool stop_requested() { return g_stop_signal != 0; }
 
-  // Adds one finished point (and one failure if failed); returns the totals.
-  void add(bool failed, long long& done, long long& bad) {
-    long long inc[2] = {1, failed ? 1 : 0}, out[2] = {0, 0};
-    MPI_Win_lock(MPI_LOCK_SHARED, 0, 0, win_);
-    MPI_Fetch_and_op(&inc[0], &out[0], MPI_LONG_LONG, 0, 0, MPI_SUM, win_);
-    MPI_Fetch_and_op(&inc[1], &out[1], MPI_LONG_LONG, 0, 1, MPI_SUM, win_);
-    MPI_Win_unlock(0, win_);
-    done = out[0] + 1;
-    bad = out[1] + inc[1];
-  }
-  void read(long long& done, long long& bad) {
-    long long zero = 0;
-    MPI_Win_lock(MPI_LOCK_SHARED, 0, 0, win_);
-    MPI_Fetch_and_op(&zero, &done, MPI_LONG_LONG, 0, 0, MPI_NO_OP, win_);
-    MPI_Fetch_and_op(&zero, &bad, MPI_LONG_LONG, 0, 1, MPI_NO_OP, win_);
-    MPI_Win_unlock(0, win_);
-  }
+// A worker that got a stop signal abandons its point and gives rank 0 time to
+// write the checkpoint (rank 0's exit then ends the job); it leaves by itself
+// after 9 s in case rank 0 was not signalled.
+[[noreturn]] void stop_worker() {
+  std::this_thread::sleep_for(std::chrono::seconds(9));
+  std::_Exit(kExitInterrupted);
+}
 
- private:
-  MPI_Comm comm_;
-  int rank_ = 0;
-  long long* base_ = nullptr;
-  MPI_Win win_;
-};
+using Clock = std::chrono::steady_clock;
+double since(Clock::time_point t0) { return std::chrono::duration<double>(Clock::now() - t0).count(); }
+
+// Message tags of the task farm.
+constexpr int kTagRequest = 11;  // worker -> 0: first request for work (empty)
+constexpr int kTagRecord = 12;   // worker -> 0: a finished record (also asks for more)
+constexpr int kTagWork = 13;     // 0 -> worker: a point index, or -1 to stop
 
 std::string fmt_seconds(double s) {
   char buf[32];
@@ -65,65 +59,317 @@ std::string fmt_seconds(double s) {
   return buf;
 }
 
+// Rank 0's progress line: one updating line on a terminal, plain lines in logs.
+class Progress {
+ public:
+  Progress(bool quiet, double every, std::int64_t total, std::int64_t already)
+      : quiet_(quiet), tty_(isatty(STDERR_FILENO) == 1), total_(total), already_(already) {
+    every_ = every >= 0 ? every : (tty_ ? 0.5 : 30.0);
+  }
+  void update(std::int64_t done, std::int64_t failed, bool final = false) {
+    if (quiet_) return;
+    const double el = since(t0_);
+    if (!final && el - last_ < every_) return;
+    last_ = el;
+    const std::int64_t now = done - already_;
+    const double rate = now / std::max(el, 1e-9);
+    const double eta = rate > 0 ? (total_ - done) / rate : INFINITY;
+    std::fprintf(stderr, "%storal: %lld/%lld points, %lld failed, %.2f points/s, %s %s%s",
+                 tty_ ? "\r" : "", static_cast<long long>(done), static_cast<long long>(total_),
+                 static_cast<long long>(failed), rate, final ? "elapsed" : "ETA",
+                 fmt_seconds(final ? el : eta).c_str(), tty_ && !final ? "   " : "\n");
+    std::fflush(stderr);
+  }
+
+ private:
+  bool quiet_, tty_;
+  std::int64_t total_, already_;
+  double every_ = 30, last_ = -1e9;
+  Clock::time_point t0_ = Clock::now();
+};
+
+// A placeholder row for a point not computed yet.
+PointRecord pending_record(const Config& c, const ParamTable& t, const Point& p) {
+  PointRecord r;
+  r.index = p.index;
+  r.params = param_values(c, t, p);
+  r.status = static_cast<std::int32_t>(PointStatus::Pending);
+  r.message = "pending: not computed yet";
+  return r;
+}
+
+// Everything rank 0 needs to write the result file (final or checkpoint).
+struct FileParts {
+  RunAxes axes;
+  RunMeta meta;
+};
+
+FileParts file_parts(const Config& c, const ParamTable& table, std::int64_t ranks, const RunOptions& o) {
+  FileParts f;
+  f.axes.param_names = table.names;
+  f.axes.param_meanings = table.meanings;
+  f.axes.swept = table.swept;
+  f.axes.region_sizes = c.bounds.regions;
+  f.axes.local_dims = c.bounds.local_dims;
+  f.axes.hist_bins = c.spectrum.summary.bins;
+  f.axes.bulk_limit = c.spectrum.bulk_limit;
+  f.meta.toral_version = TORAL_VERSION;
+  f.meta.config_text = c.text;
+  f.meta.config_source = c.source;
+  f.meta.created = iso8601_utc_now();
+  f.meta.ranks = ranks;
+  for (const auto& s : c.sweeps) f.meta.sweep_names.push_back(s.name);
+  f.meta.config_hash = config_hash(c);
+  f.meta.total_points = point_count(c);
+  if (o.shard_count > 1) f.meta.shard = std::to_string(o.shard_index) + "/" + std::to_string(o.shard_count);
+  return f;
+}
+
+// Gives each record its row in this run's file (the position of its index in `mine`).
+void assign_rows(std::vector<PointRecord>& recs, const std::map<std::int64_t, std::int64_t>& row_of) {
+  for (auto& r : recs) r.row = row_of.at(r.index);
+}
+
+// Shares rank 0's verdict: an empty string means go on; else every rank throws.
+void agree_or_throw(MPI_Comm comm, std::string verdict) {
+  long long n = static_cast<long long>(verdict.size());
+  MPI_Bcast(&n, 1, MPI_LONG_LONG, 0, comm);
+  verdict.resize(static_cast<std::size_t>(n));
+  if (n) MPI_Bcast(verdict.data(), static_cast<int>(n), MPI_CHAR, 0, comm);
+  if (!verdict.empty()) throw ConfigError(verdict);
+}
+
+void send_bytes(const std::string& s, int dest, int tag, MPI_Comm comm) {
+  MPI_Send(s.data(), static_cast<int>(s.size()), MPI_BYTE, dest, tag, comm);
+}
+
+std::string recv_bytes(const MPI_Status& st, MPI_Comm comm) {
+  int n = 0;
+  MPI_Get_count(&st, MPI_BYTE, &n);
+  std::string s(static_cast<std::size_t>(n), '\0');
+  MPI_Recv(s.data(), n, MPI_BYTE, st.MPI_SOURCE, st.MPI_TAG, comm, MPI_STATUS_IGNORE);
+  return s;
+}
+
 }  // namespace
+
+std::string config_hash(const Config& c) { return config_hash_of(c.text); }
+
+void install_stop_handlers() {
+  struct sigaction sa {};
+  sa.sa_handler = on_stop_signal;
+  sigemptyset(&sa.sa_mask);
+  for (int s : {SIGTERM, SIGUSR1, SIGINT}) sigaction(s, &sa, nullptr);
+}
 
 RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
   int rank = 0, size = 1;
   MPI_Comm_rank(comm, &rank);
   MPI_Comm_size(comm, &size);
-  const auto t0 = std::chrono::steady_clock::now();
+  const auto t0 = Clock::now();
   const ParamTable table = param_table(c);
   const std::vector<Point> points = expand(c);
-  const auto total = static_cast<std::int64_t>(points.size());
+  std::vector<std::int64_t> mine;  // this run's points (a shard: index % n == i)
+  for (const auto& p : points)
+    if (p.index % o.shard_count == o.shard_index) mine.push_back(p.index);
+  std::map<std::int64_t, std::int64_t> row_of;
+  for (std::size_t r = 0; r < mine.size(); ++r) row_of[mine[r]] = static_cast<std::int64_t>(r);
+  const FileParts parts = file_parts(c, table, size, o);
+  const std::string jpath = journal_path(o.output);
 
-  std::vector<PointRecord> local;
+  // ---- rank 0: what is already done (journal or an earlier file)
+  std::vector<PointRecord> done;  // rank 0 only: records from before this run
+  bool from_journal = false;
   {
-    ProgressCounter progress(comm);
-    double last_print = -1e9;
-    long long done = 0, bad = 0;
-    for (std::int64_t i = rank; i < total; i += size) {
-      local.push_back(compute_point(c, table, points[static_cast<std::size_t>(i)]));
-      progress.add(local.back().status != 0, done, bad);
-      if (rank == 0 && !o.quiet) {
-        const double el = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-        if (el - last_print >= 1.0) {
-          progress.read(done, bad);
-          const double rate = done / std::max(el, 1e-9);
-          std::fprintf(stderr, "toral: %lld/%lld points, %lld failed, %.1f points/s, ETA %s\n", done,
-                       static_cast<long long>(total), bad, rate, fmt_seconds((total - done) / rate).c_str());
-          last_print = el;
+    std::string verdict;
+    if (rank == 0) {
+      try {
+        const bool have_journal = std::filesystem::exists(jpath);
+        if (o.resume && have_journal) {
+          JournalContents j = read_journal(jpath);
+          if (j.config_hash != parts.meta.config_hash)
+            verdict = jpath + ": --resume refused: the journal was written by a different config (hash " +
+                      j.config_hash + ", this config " + parts.meta.config_hash + ")";
+          else
+            done = std::move(j.records), from_journal = true;
+        } else if (o.resume && output_exists(o.output)) {
+          ResultData d = read_results(o.output);
+          if (d.meta.config_hash != parts.meta.config_hash)
+            verdict = o.output + ": --resume refused: the file was written by a different config (hash " +
+                      d.meta.config_hash + ", this config " + parts.meta.config_hash + ")";
+          else if (d.meta.shard != parts.meta.shard)
+            verdict = o.output + ": --resume refused: the file holds shard \"" + d.meta.shard +
+                      "\", this run is shard \"" + parts.meta.shard + "\"";
+          for (auto& r : d.records)
+            if (r.status != static_cast<std::int32_t>(PointStatus::Pending)) done.push_back(std::move(r));
+        } else if (!o.resume && have_journal && !o.overwrite) {
+          verdict = jpath + ": an interrupted run left this journal; pass --resume to finish it or --overwrite to start over";
         }
+        // keep only this run's points, once each
+        std::vector<PointRecord> kept;
+        std::vector<char> seen(points.size(), 0);
+        for (auto& r : done)
+          if (r.index >= 0 && r.index < static_cast<std::int64_t>(points.size()) && row_of.count(r.index) &&
+              !seen[static_cast<std::size_t>(r.index)]) {
+            seen[static_cast<std::size_t>(r.index)] = 1;
+            kept.push_back(std::move(r));
+          }
+        done = std::move(kept);
+      } catch (const std::exception& e) {
+        verdict = e.what();
       }
     }
-    MPI_Barrier(comm);
+    agree_or_throw(comm, verdict);
   }
 
-  RunAxes axes;
-  axes.param_names = table.names;
-  axes.param_meanings = table.meanings;
-  axes.swept = table.swept;
-  axes.region_sizes = c.bounds.regions;
-  axes.local_dims = c.bounds.local_dims;
-  axes.hist_bins = c.spectrum.summary.bins;
-  axes.bulk_limit = c.spectrum.bulk_limit;
-  RunMeta meta;
-  meta.toral_version = TORAL_VERSION;
-  meta.config_text = c.text;
-  meta.config_source = c.source;
-  meta.created = iso8601_utc_now();
-  meta.ranks = size;
-  for (const auto& s : c.sweeps) meta.sweep_names.push_back(s.name);
-  write_results(comm, o.output, o.overwrite, axes, meta, total, local);
-
+  install_stop_handlers();
+  std::vector<PointRecord> local;  // records this rank computed now
   RunOutcome out;
-  out.points = total;
-  long long bad_local = 0;
-  for (const auto& r : local) bad_local += r.status != 0;
-  long long bad_all = 0;
-  MPI_Allreduce(&bad_local, &bad_all, 1, MPI_LONG_LONG, MPI_SUM, comm);
-  out.failed = bad_all;
-  out.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-  print_run_summary(comm, c, table, local, out.points, out.seconds, o.output);
+  out.points = static_cast<std::int64_t>(mine.size());
+
+  if (rank == 0) {
+    // ---- coordinator (and a computing rank itself)
+    std::vector<char> is_done(points.size(), 0);
+    for (const auto& r : done) is_done[static_cast<std::size_t>(r.index)] = 1;
+    std::vector<std::int64_t> todo;
+    for (std::int64_t i : mine)
+      if (!is_done[static_cast<std::size_t>(i)]) todo.push_back(i);
+    std::vector<double> cost(points.size(), 0.0);
+    for (std::int64_t i : todo) cost[static_cast<std::size_t>(i)] = estimated_flops(c, points[static_cast<std::size_t>(i)]);
+    std::stable_sort(todo.begin(), todo.end(), [&](std::int64_t a, std::int64_t b) {
+      return cost[static_cast<std::size_t>(a)] > cost[static_cast<std::size_t>(b)];
+    });
+
+    JournalWriter journal;
+    if (from_journal)
+      journal.open_append(jpath);
+    else
+      journal.open_new(jpath, parts.meta.config_hash, parts.meta.total_points);
+
+    std::vector<PointRecord> all = done;  // every finished record of this run
+    std::int64_t failed = 0;
+    for (const auto& r : all) failed += r.status != 0;
+    Progress progress(o.quiet, o.progress_seconds, out.points, static_cast<std::int64_t>(all.size()));
+
+    auto checkpoint = [&]() {
+      std::vector<PointRecord> recs = all;
+      std::vector<char> have(points.size(), 0);
+      for (const auto& r : recs) have[static_cast<std::size_t>(r.index)] = 1;
+      for (std::int64_t i : mine)
+        if (!have[static_cast<std::size_t>(i)]) recs.push_back(pending_record(c, table, points[static_cast<std::size_t>(i)]));
+      assign_rows(recs, row_of);
+      journal.sync();
+      write_results(MPI_COMM_SELF, o.output, true, parts.axes, parts.meta, out.points, recs);
+    };
+    auto commit = [&](PointRecord&& r) {
+      journal.append(r);
+      failed += r.status != 0;
+      all.push_back(std::move(r));
+    };
+
+    std::size_t next = 0;
+    int active_workers = size - 1;
+    std::future<PointRecord> mine_now;
+    auto last_checkpoint = Clock::now();
+    while (true) {
+      if (stop_requested()) {
+        // Stop handing out work; the journal has every finished point.
+        checkpoint();
+        journal.close();
+        std::fprintf(stderr, "\ntoral: stopped by signal %d: %lld of %lld points done; checkpoint in %s, resume with --resume\n",
+                     static_cast<int>(g_stop_signal), static_cast<long long>(all.size()),
+                     static_cast<long long>(out.points), o.output.c_str());
+        std::fflush(stderr);
+        std::_Exit(kExitInterrupted);
+      }
+      bool busy = false;
+      if (!mine_now.valid() && next < todo.size()) {
+        const Point& p = points[static_cast<std::size_t>(todo[next++])];
+        mine_now = std::async(std::launch::async, [&c, &table, &p] { return compute_point(c, table, p); });
+        busy = true;
+      }
+      if (mine_now.valid() && mine_now.wait_for(std::chrono::milliseconds(0)) == std::future_status::ready) {
+        PointRecord r = mine_now.get();
+        local.push_back(r);
+        commit(std::move(r));
+        busy = true;
+      }
+      int flag = 0;
+      MPI_Status st;
+      MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, comm, &flag, &st);
+      if (flag) {
+        busy = true;
+        if (st.MPI_TAG == kTagRecord) {
+          commit(decode_record(recv_bytes(st, comm)));
+        } else {
+          MPI_Recv(nullptr, 0, MPI_BYTE, st.MPI_SOURCE, st.MPI_TAG, comm, MPI_STATUS_IGNORE);
+        }
+        long long work = -1;
+        if (next < todo.size()) work = todo[next++];
+        else --active_workers;
+        MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagWork, comm);
+      }
+      progress.update(static_cast<std::int64_t>(all.size()), failed);
+      if (next >= todo.size() && !mine_now.valid() && active_workers == 0) break;
+      if (o.checkpoint_seconds >= 0 && since(last_checkpoint) >= o.checkpoint_seconds && next < todo.size()) {
+        checkpoint();
+        last_checkpoint = Clock::now();
+      }
+      if (!busy) {
+        if (mine_now.valid())
+          mine_now.wait_for(std::chrono::milliseconds(1));
+        else
+          std::this_thread::sleep_for(std::chrono::milliseconds(1));
+      }
+    }
+    progress.update(static_cast<std::int64_t>(all.size()), failed, true);
+    journal.sync();
+    // rank 0 writes the earlier records too
+    local.insert(local.end(), done.begin(), done.end());
+    out.failed = failed;
+    out.computed = static_cast<std::int64_t>(all.size() - done.size());
+    assign_rows(local, row_of);
+    const EnsembleStats stats = ensemble_stats(parts.axes, all);
+    journal.close();
+    write_results(comm, o.output, true, parts.axes, parts.meta, out.points, local, &stats);
+    std::error_code ec;
+    std::filesystem::remove(jpath, ec);  // the final file is complete: the journal has served
+  } else {
+    // ---- worker
+    MPI_Send(nullptr, 0, MPI_BYTE, 0, kTagRequest, comm);
+    while (true) {
+      long long work = -1;
+      MPI_Request req;
+      MPI_Irecv(&work, 1, MPI_LONG_LONG, 0, kTagWork, comm, &req);
+      int got = 0;
+      while (!got) {
+        MPI_Test(&req, &got, MPI_STATUS_IGNORE);
+        if (stop_requested()) stop_worker();
+        if (!got) std::this_thread::sleep_for(std::chrono::milliseconds(1));
+      }
+      if (work < 0) break;
+      const Point& p = points[static_cast<std::size_t>(work)];
+      auto fut = std::async(std::launch::async, [&c, &table, &p] { return compute_point(c, table, p); });
+      while (fut.wait_for(std::chrono::milliseconds(20)) != std::future_status::ready)
+        if (stop_requested()) stop_worker();
+      PointRecord r = fut.get();
+      send_bytes(encode_record(r), 0, kTagRecord, comm);
+      local.push_back(std::move(r));
+    }
+    assign_rows(local, row_of);
+    write_results(comm, o.output, true, parts.axes, parts.meta, out.points, local, nullptr);
+  }
+
+  long long counts[2] = {out.failed, out.computed};
+  MPI_Bcast(counts, 2, MPI_LONG_LONG, 0, comm);
+  out.failed = counts[0];
+  out.computed = counts[1];
+  out.seconds = since(t0);
+  double busy = 0.0;
+  for (const auto& r : local) busy += r.wall_time;
+  if (rank == 0)
+    for (const auto& r : done) busy -= r.wall_time;  // computed before this run
+  print_run_summary(comm, c, table, local, out.points, out.seconds, o.output, std::max(busy, 0.0));
   return out;
 }
 

@@ -19,6 +19,17 @@ enum class PointStatus : std::int32_t {
   SolverFailed = 3,   // the eigen-solver failed or did not converge
   NoMethod = 4,       // no spectrum method applies to this point
   InternalError = 5,  // anything else; see the message
+  Pending = 6,        // not computed yet (checkpoint of an unfinished run)
+};
+
+// Spectrum-solver codes stored in /chaos/solver/method.
+enum class SolverCode : std::int32_t {
+  None = 0,
+  Lapack = 1,        // dense dgeevx
+  BlochExact = 2,    // 2x2 / 4x4 Bloch blocks
+  KrylovSchur = 3,   // SLEPc, largest magnitude
+  ShiftInvert = 4,   // SLEPc, shift-and-invert with an LU
+  Tangent = 5,       // QR (Benettin) method over T periods
 };
 
 // Coordinates shared by all points of a run (written once).
@@ -40,10 +51,14 @@ struct RunMeta {
   std::string created;        // ISO 8601 UTC creation time
   std::int64_t ranks = 1;     // MPI ranks of the run
   std::vector<std::string> sweep_names;  // /points/sweep indexes into this
+  std::string config_hash;    // hex FNV-1a-64 of config_text (resume/merge check)
+  std::int64_t total_points = 0;  // points of the whole run (a shard holds a subset)
+  std::string shard;          // "i/n" for a shard file, "" for a whole run
 };
 
 struct PointRecord {
-  std::int64_t index = -1;                // global point index, row in every dataset
+  std::int64_t index = -1;                // global point index (/points/index)
+  std::int64_t row = -1;                  // row in this file; -1 means row = index
   std::vector<std::int64_t> params;       // same order as RunAxes::param_names
   std::int32_t status = 0;                // PointStatus
   std::string message;                    // empty when ok
@@ -54,7 +69,18 @@ struct PointRecord {
   double lambda_max = kNaN, ks_rate = kNaN, ks_density = kNaN;
   std::int64_t unstable_count = -1;
   std::vector<double> exponents;          // kept exponents, descending
+  std::vector<double> exponent_errors;    // per kept exponent (same length), or empty
   double pairing_defect = kNaN, sum_defect = kNaN, error_bound = kNaN;
+
+  // /chaos/solver: diagnostics of the method that produced the spectrum
+  std::int32_t solver = 0;                // SolverCode
+  std::int64_t solver_converged = -1;     // eigenpairs converged / exponents estimated
+  std::int64_t solver_iterations = -1;    // restarts, iterations or periods
+  double solver_residual = kNaN;          // largest relative residual ||Ax - mu x|| / |mu|
+  double solver_time = kNaN;              // seconds in the solver
+  std::int64_t solver_ranks = 1;          // ranks that computed the point
+  std::int64_t cluster_count = -1;        // computed values within cluster tolerance of the top
+  double cluster_spread = kNaN;           // their spread in exponent
   std::vector<double> hist_counts, hist_edges;  // size bins, bins + 1 (or empty)
 
   // /limit (bulk L -> infinity), NaN when not translation-invariant
@@ -69,6 +95,22 @@ struct PointRecord {
   std::vector<double> ehrenfest_time;       // [N]
   std::vector<double> saturation_lyapunov;  // [ell][N]
   std::vector<double> saturation_lightcone; // [ell][N]
+};
+
+// Ensemble statistics over points that differ only in their seed (/stats).
+struct StatsColumn {
+  std::string name;                 // e.g. "lambda_max", "lyapunov_rate"
+  std::vector<std::uint64_t> inner;  // trailing shape: {}, {n_ell}, {n_N} or {n_ell, n_N}
+  std::vector<double> mean, std, sem, median;  // groups x prod(inner), row-major
+  std::string units, meaning;
+};
+
+struct EnsembleStats {
+  std::vector<std::string> param_names;  // the /points parameters except seed
+  std::vector<std::int64_t> params;      // groups x param_names, row-major
+  std::vector<std::int64_t> count;       // ok points per group
+  std::vector<StatsColumn> columns;
+  std::int64_t groups() const { return static_cast<std::int64_t>(count.size()); }
 };
 
 }  // namespace toral

@@ -5,13 +5,16 @@
 
 #include <algorithm>
 #include <cerrno>
+#include <cmath>
 #include <cstdio>
 #include <cstring>
 #include <ctime>
 #include <filesystem>
 #include <limits>
+#include <numeric>
 #include <random>
 #include <sstream>
+#include <type_traits>
 
 #include "h5.hpp"
 
@@ -57,6 +60,18 @@ void bcast(MPI_Comm c, std::vector<std::int64_t>& v) {
   v.resize(static_cast<std::size_t>(n));
   if (n > 0) MPI_Bcast(v.data(), static_cast<int>(n), MPI_INT64_T, 0, c);
 }
+// Numeric vectors of any length (sent in chunks of at most 2^28 elements).
+template <class T>
+void bcast_numbers(MPI_Comm c, std::vector<T>& v, MPI_Datatype type) {
+  long long n = static_cast<long long>(v.size());
+  MPI_Bcast(&n, 1, MPI_LONG_LONG, 0, c);
+  v.resize(static_cast<std::size_t>(n));
+  const std::size_t chunk = std::size_t{1} << 28;
+  for (std::size_t off = 0; off < v.size(); off += chunk)
+    MPI_Bcast(v.data() + off, static_cast<int>(std::min(chunk, v.size() - off)), type, 0, c);
+}
+void bcast(MPI_Comm c, std::vector<double>& v) { bcast_numbers(c, v, MPI_DOUBLE); }
+void bcast(MPI_Comm c, std::vector<std::uint64_t>& v) { bcast_numbers(c, v, MPI_UINT64_T); }
 void bcast(MPI_Comm c, std::int64_t& x) { MPI_Bcast(&x, 1, MPI_INT64_T, 0, c); }
 void bcast(MPI_Comm c, int& x) { MPI_Bcast(&x, 1, MPI_INT, 0, c); }
 
@@ -149,9 +164,13 @@ std::pair<int, std::string> publish(const std::string& tmp, const std::string& p
   return {kOk, {}};
 }
 
-// Rank-local validation of the records against the axes.
+// The row a record goes to.
+std::int64_t row_of(const PointRecord& r) { return r.row == -1 ? r.index : r.row; }
+
+// Rank-local validation of the records (sorted by row) against the axes.
+// `whole`: a whole-run file, where row must equal index.
 std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes& ax,
-                     std::int64_t total) {
+                     std::int64_t rows, std::int64_t total, bool whole) {
   const std::size_t nl = ax.region_sizes.size(), nn = ax.local_dims.size();
   const std::size_t bins = static_cast<std::size_t>(std::max(ax.hist_bins, 0));
   const std::size_t edges = bins > 0 ? bins + 1 : 0;
@@ -165,10 +184,24 @@ std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes&
     };
     if (r.index < 0 || r.index >= total)
       return at + ": index outside 0.." + std::to_string(total - 1);
-    if (i > 0 && recs[i - 1]->index == r.index) return at + ": passed twice";
+    if (r.row < -1)
+      return at + ": row " + std::to_string(r.row) + " is negative (-1 means row = index)";
+    const std::int64_t row = row_of(r);
+    if (row >= rows)
+      return at + ": row " + std::to_string(row) + " outside 0.." + std::to_string(rows - 1);
+    if (whole && row != r.index)
+      return at + ": row " + std::to_string(row) +
+             " differs from the index in a whole-run file (shard \"\" and total_points = rows); "
+             "set meta.shard for a file holding a subset";
+    if (i > 0 && row_of(*recs[i - 1]) == row)
+      return at + " (row " + std::to_string(row) + "): passed twice";
     if (r.params.size() != ax.param_names.size())
       return at + ": " + std::to_string(r.params.size()) + " parameters, expected " +
              std::to_string(ax.param_names.size());
+    if (!r.exponent_errors.empty() && r.exponent_errors.size() != r.exponents.size())
+      return at + ": exponent_errors has " + std::to_string(r.exponent_errors.size()) +
+             " values for " + std::to_string(r.exponents.size()) + " exponents (expected as many, "
+             "or none)";
     for (const std::string& e :
          {len(r.hist_counts, bins, "hist_counts"), len(r.hist_edges, edges, "hist_edges"),
           len(r.limit_hist_counts, bins, "limit_hist_counts"),
@@ -181,6 +214,99 @@ std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes&
       if (!e.empty()) return e;
   }
   return {};
+}
+
+// Collective: the global indices are unique over all ranks. Each (index,
+// row) pair goes to rank index % size, which looks for repeats. Returns
+// this rank's finding (empty when none).
+std::string duplicate_index(MPI_Comm comm, const std::vector<const PointRecord*>& recs) {
+  const int size = comm_size(comm);
+  std::vector<int> scount(static_cast<std::size_t>(size), 0), rcount(scount), sdispl(scount),
+      rdispl(scount);
+  for (const auto* r : recs) scount[static_cast<std::size_t>(r->index % size)] += 2;
+  for (int k = 1; k < size; ++k) sdispl[k] = sdispl[k - 1] + scount[k - 1];
+  std::vector<std::int64_t> send(recs.size() * 2);
+  {
+    std::vector<int> at(sdispl);
+    for (const auto* r : recs) {
+      int& a = at[static_cast<std::size_t>(r->index % size)];
+      send[static_cast<std::size_t>(a)] = r->index;
+      send[static_cast<std::size_t>(a) + 1] = row_of(*r);
+      a += 2;
+    }
+  }
+  MPI_Alltoall(scount.data(), 1, MPI_INT, rcount.data(), 1, MPI_INT, comm);
+  for (int k = 1; k < size; ++k) rdispl[k] = rdispl[k - 1] + rcount[k - 1];
+  std::vector<std::int64_t> recv(static_cast<std::size_t>(rdispl.back() + rcount.back()));
+  MPI_Alltoallv(send.data(), scount.data(), sdispl.data(), MPI_INT64_T, recv.data(), rcount.data(),
+                rdispl.data(), MPI_INT64_T, comm);
+  std::vector<std::pair<std::int64_t, std::int64_t>> pairs;
+  pairs.reserve(recv.size() / 2);
+  for (std::size_t i = 0; i + 1 < recv.size(); i += 2) pairs.emplace_back(recv[i], recv[i + 1]);
+  std::sort(pairs.begin(), pairs.end());
+  for (std::size_t i = 1; i < pairs.size(); ++i)
+    if (pairs[i].first == pairs[i - 1].first)
+      return "point " + std::to_string(pairs[i].first) + " is in more than one row (rows " +
+             std::to_string(pairs[i - 1].second) + " and " + std::to_string(pairs[i].second) + ")";
+  return {};
+}
+
+// Validation of (rank 0's, broadcast) stats; identical on every rank.
+std::string validate_stats(const EnsembleStats& st) {
+  const std::size_t G = st.count.size();
+  const std::string at = "stats: ";
+  if (st.params.size() != G * st.param_names.size())
+    return at + std::to_string(st.params.size()) + " parameter values for " + std::to_string(G) +
+           " groups x " + std::to_string(st.param_names.size()) + " parameters";
+  std::vector<std::string> names = st.param_names;
+  names.push_back("count");
+  for (const auto& c : st.columns) names.push_back(c.name);
+  for (const auto& n : names)
+    if (n.empty() || n.find('/') != std::string::npos || n == "." || n == "..")
+      return at + "invalid name '" + n + "'";
+  {
+    std::vector<std::string> sorted = names;
+    std::sort(sorted.begin(), sorted.end());
+    auto d = std::adjacent_find(sorted.begin(), sorted.end());
+    if (d != sorted.end())
+      return at + "name '" + *d + "' used twice (parameters, \"count\" and columns share /stats)";
+  }
+  for (const auto& c : st.columns) {
+    std::size_t w = 1;
+    for (auto x : c.inner) w *= static_cast<std::size_t>(x);
+    const std::size_t want = G * w;
+    for (const auto& [v, what] : {std::pair{&c.mean, "mean"}, std::pair{&c.std, "std"},
+                                  std::pair{&c.sem, "sem"}, std::pair{&c.median, "median"}})
+      if (v->size() != want)
+        return at + "column '" + c.name + "' " + what + " has " + std::to_string(v->size()) +
+               " values, expected " + std::to_string(want) + " (groups x inner)";
+  }
+  return {};
+}
+
+// Broadcasts rank 0's stats; returns whether /stats is to be written.
+bool bcast_stats(MPI_Comm comm, const EnsembleStats* in, EnsembleStats& st) {
+  int have = (comm_rank(comm) == 0 && in && in->groups() > 0) ? 1 : 0;
+  MPI_Bcast(&have, 1, MPI_INT, 0, comm);
+  if (!have) return false;
+  if (comm_rank(comm) == 0) st = *in;
+  bcast(comm, st.param_names);
+  bcast(comm, st.params);
+  bcast(comm, st.count);
+  long long nc = static_cast<long long>(st.columns.size());
+  MPI_Bcast(&nc, 1, MPI_LONG_LONG, 0, comm);
+  st.columns.resize(static_cast<std::size_t>(nc));
+  for (auto& c : st.columns) {
+    bcast(comm, c.name);
+    bcast(comm, c.inner);
+    bcast(comm, c.mean);
+    bcast(comm, c.std);
+    bcast(comm, c.sem);
+    bcast(comm, c.median);
+    bcast(comm, c.units);
+    bcast(comm, c.meaning);
+  }
+  return true;
 }
 
 // ---------------------------------------------------------------- writing
@@ -256,8 +382,61 @@ void put_coord(const h5::Object& parent, bool writer, const std::string& name,
   ds.close();
 }
 
+// Whole-dataset f64 array of shape dims, written by rank 0.
+void put_whole_f64(const h5::Object& parent, bool writer, const std::string& name,
+                   const std::vector<hsize_t>& dims, const std::vector<double>& v,
+                   const std::string& units, const std::string& meaning) {
+  h5::Dataset ds = h5::create_dataset(parent, name, H5T_IEEE_F64LE, dims, true);
+  describe(ds, units, meaning);
+  h5::write_all(ds, writer, v.data(), H5T_NATIVE_DOUBLE);
+  ds.close();
+}
+
+void write_stats(const h5::Group& root, bool writer, const EnsembleStats& st) {
+  const hsize_t G = static_cast<hsize_t>(st.count.size());
+  const std::size_t np = st.param_names.size();
+  h5::Group g = h5::create_group(root, "stats");
+  h5::set_attr(g, "meaning",
+               "ensemble statistics over groups of ok points that differ only in their seed; row "
+               "g is one group, identified by the parameter datasets; mean, std, sem and median "
+               "are taken over the count ok points of the group; std is the sample standard "
+               "deviation (ddof = 1), sem = std / sqrt(count); std and sem are NaN where count < "
+               "2, mean and median NaN where count = 0");
+  h5::set_attr(g, "parameters", st.param_names);
+  std::vector<std::string> cols;
+  for (const auto& c : st.columns) cols.push_back(c.name);
+  h5::set_attr(g, "columns", cols);
+  for (std::size_t p = 0; p < np; ++p) {
+    std::vector<std::int64_t> v(G);
+    for (std::size_t i = 0; i < G; ++i) v[i] = st.params[i * np + p];
+    put_coord(g, writer, st.param_names[p], v, "1",
+              "value of /points/" + st.param_names[p] + " shared by the points of the group");
+  }
+  put_coord(g, writer, "count", st.count, "1",
+            "number of ok points of the group that the statistics are taken over");
+  for (const auto& c : st.columns) {
+    h5::Group cg = h5::create_group(g, c.name);
+    describe(cg, c.units, c.meaning);
+    std::vector<hsize_t> dims{G};
+    for (auto x : c.inner) dims.push_back(static_cast<hsize_t>(x));
+    put_whole_f64(cg, writer, "mean", dims, c.mean, c.units,
+                  "sample mean over the ok points of the group");
+    put_whole_f64(cg, writer, "std", dims, c.std, c.units,
+                  "sample standard deviation (ddof = 1) over the ok points of the group; NaN "
+                  "where count < 2");
+    put_whole_f64(cg, writer, "sem", dims, c.sem, c.units,
+                  "standard error of the mean, std / sqrt(count); NaN where count < 2");
+    put_whole_f64(cg, writer, "median", dims, c.median, c.units,
+                  "median over the ok points of the group (mean of the two middle values for "
+                  "even count)");
+    cg.close();
+  }
+  g.close();
+}
+
 void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const RunMeta& meta,
-                std::int64_t total, const std::vector<const PointRecord*>& recs, std::size_t K) {
+                std::int64_t total, const std::vector<const PointRecord*>& recs, std::size_t K,
+                const EnsembleStats* stats) {
   const int rank = comm_rank(comm);
   const std::size_t nl = ax.region_sizes.size(), nn = ax.local_dims.size();
   const std::size_t bins = static_cast<std::size_t>(std::max(ax.hist_bins, 0));
@@ -276,16 +455,21 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
     h5::set_attr(root, "ranks", meta.ranks);
     h5::set_attr(root, "point_count", total);
     h5::set_attr(root, "sweep_names", meta.sweep_names);
+    h5::set_attr(root, "config_hash", meta.config_hash);
+    h5::set_attr(root, "total_points", meta.total_points);
+    h5::set_attr(root, "shard", meta.shard);
 
     Ctx c;
     c.total = total;
-    for (const auto* r : recs) c.rows.push_back(r->index);
+    for (const auto* r : recs) c.rows.push_back(row_of(*r));
 
     // ---- /points
     {
       h5::Group g = h5::create_group(root, "points");
       c.parent = &g;
-      h5::set_attr(g, "meaning", "one entry per sweep point; row i is point i in expansion order");
+      h5::set_attr(g, "meaning",
+                   "one entry per sweep point held by this file; row i holds point index[i] "
+                   "(= i in a whole-run file) in expansion order");
       h5::set_attr(g, "parameters", ax.param_names);
       h5::set_attr(g, "swept", ax.swept);
       h5::set_attr(g, "absent", std::numeric_limits<std::int64_t>::min());
@@ -296,6 +480,9 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
         put_i64(c, ax.param_names[p], v, "1",
                 p < ax.param_meanings.size() ? ax.param_meanings[p] : std::string());
       }
+      put_i64(c, "index", icolumn(recs, [](const PointRecord& r) { return r.index; }), "1",
+              "global index of the point of this row in the whole run (0 .. total_points-1, "
+              "expansion order); equals the row in a whole-run file");
       {
         std::vector<std::int32_t> st, me;
         for (const auto* r : recs) {
@@ -303,8 +490,8 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
           me.push_back(r->method);
         }
         put(c, "status", H5T_STD_I32LE, H5T_NATIVE_INT32, {}, st, "",
-            "point status: 0 ok, else an error code (attribute labels); failed points hold NaN "
-            "results");
+            "point status: 0 ok, 6 pending (not computed yet), else an error code (attribute "
+            "labels); failed and pending points hold NaN results");
         h5::Dataset ds = h5::open_dataset(g, "status");
         h5::set_attr(ds, "labels", status_labels());
         ds.close();
@@ -352,6 +539,52 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
               icolumn(recs,
                       [](const PointRecord& r) { return static_cast<std::int64_t>(r.exponents.size()); }),
               "1", "number of real (non-padding) entries in the row of exponents");
+      put_f64(c, "exponent_error", {hk},
+              rows_of(recs, K,
+                      [](const PointRecord& r) -> const auto& { return r.exponent_errors; }),
+              "1/period",
+              "estimated absolute error of each entry of the row of exponents; NaN where not "
+              "estimated and as padding beyond exponent_count");
+      {
+        h5::Group sg = h5::create_group(g, "solver");
+        Ctx cs = c;
+        cs.parent = &sg;
+        h5::set_attr(sg, "meaning", "diagnostics of the solver that produced the spectrum");
+        {
+          std::vector<std::int32_t> v;
+          v.reserve(recs.size());
+          for (const auto* r : recs) v.push_back(r->solver);
+          put(cs, "method", H5T_STD_I32LE, H5T_NATIVE_INT32, {}, v, "",
+              "spectrum solver (attribute labels: 0 none, 1 lapack, 2 bloch_exact, 3 "
+              "krylov_schur, 4 shift_invert, 5 tangent)");
+          h5::Dataset ds = h5::open_dataset(sg, "method");
+          h5::set_attr(ds, "labels", solver_labels());
+          ds.close();
+        }
+        put_i64(cs, "converged", icolumn(recs, [](const PointRecord& r) { return r.solver_converged; }),
+                "1", "eigenpairs converged (iterative solvers) or exponents estimated; -1 not "
+                     "reported");
+        put_i64(cs, "iterations",
+                icolumn(recs, [](const PointRecord& r) { return r.solver_iterations; }), "1",
+                "restarts, iterations or periods the solver used; -1 not reported");
+        put_f64(cs, "residual", {},
+                column(recs, [](const PointRecord& r) { return r.solver_residual; }), "1",
+                "largest relative residual ||S x - mu x|| / |mu| of the returned eigenpairs; NaN "
+                "not reported");
+        put_f64(cs, "wall_time", {},
+                column(recs, [](const PointRecord& r) { return r.solver_time; }), "s",
+                "wall-clock time spent in the solver");
+        put_i64(cs, "ranks", icolumn(recs, [](const PointRecord& r) { return r.solver_ranks; }),
+                "1", "MPI ranks that computed the point together");
+        put_i64(cs, "cluster_count",
+                icolumn(recs, [](const PointRecord& r) { return r.cluster_count; }), "1",
+                "computed eigenvalues within the cluster tolerance of the top one; -1 not "
+                "reported");
+        put_f64(cs, "cluster_spread", {},
+                column(recs, [](const PointRecord& r) { return r.cluster_spread; }), "1/period",
+                "spread in exponent (ln|mu|) of that cluster; NaN not reported");
+        sg.close();
+      }
       {
         h5::Group a = h5::create_group(g, "accuracy");
         Ctx ca = c;
@@ -457,6 +690,9 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
               "periods", "time to reach hilbert_cap at lightcone_rate, [ell][N]");
       g.close();
     }
+
+    // ---- /stats
+    if (stats) write_stats(root, rank == 0, *stats);
     root.close();
   }
   f.close();
@@ -467,13 +703,19 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
 // ---------------------------------------------------------------- public
 
 const std::vector<std::string>& status_labels() {
-  static const std::vector<std::string> v{"ok",           "invalid_model", "overflow",
-                                          "solver_failed", "no_method",     "internal_error"};
+  static const std::vector<std::string> v{"ok",        "invalid_model",  "overflow", "solver_failed",
+                                          "no_method", "internal_error", "pending"};
   return v;
 }
 
 const std::vector<std::string>& method_labels() {
   static const std::vector<std::string> v{"none", "bloch", "dense", "krylov"};
+  return v;
+}
+
+const std::vector<std::string>& solver_labels() {
+  static const std::vector<std::string> v{"none",         "lapack",       "bloch_exact",
+                                          "krylov_schur", "shift_invert", "tangent"};
   return v;
 }
 
@@ -501,8 +743,8 @@ void check_output_target(MPI_Comm comm, const std::string& path, bool overwrite)
 }
 
 void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const RunAxes& axes,
-                   const RunMeta& meta, std::int64_t total_points,
-                   const std::vector<PointRecord>& local) {
+                   const RunMeta& meta, std::int64_t rows, const std::vector<PointRecord>& local,
+                   const EnsembleStats* stats) {
   const int rank = comm_rank(comm);
   std::string where = path;
   bcast(comm, where);  // the path must be the same everywhere; rank 0's wins
@@ -528,48 +770,74 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   if (rank == 0 && mt.ranks < 1) mt.ranks = comm_size(comm);
   bcast(comm, mt.ranks);
   bcast(comm, mt.sweep_names);
+  if (rank == 0 && mt.config_hash.empty()) mt.config_hash = config_hash_of(mt.config_text);
+  bcast(comm, mt.config_hash);
+  bcast(comm, mt.total_points);
+  bcast(comm, mt.shard);
+  EnsembleStats st;
+  const bool with_stats = bcast_stats(comm, stats, st);
 
   {
-    std::int64_t tot[2] = {total_points, -total_points}, red[2] = {0, 0};
+    std::int64_t tot[2] = {rows, -rows}, red[2] = {0, 0};
     MPI_Allreduce(tot, red, 2, MPI_INT64_T, MPI_MIN, comm);
     if (red[0] != -red[1])
-      raise(kOther, "write_results: total_points differs between ranks (" +
-                        std::to_string(red[0]) + " .. " + std::to_string(-red[1]) + ")");
-    if (total_points < 0) raise(kOther, "write_results: negative total_points");
+      raise(kOther, "write_results: rows differs between ranks (" + std::to_string(red[0]) +
+                        " .. " + std::to_string(-red[1]) + ")");
+    if (rows < 0) raise(kOther, "write_results: negative rows");
     if (ax.hist_bins < 0) raise(kOther, "write_results: negative hist_bins");
+    if (mt.total_points < 0) raise(kOther, "write_results: negative meta.total_points");
+    if (mt.total_points == 0) mt.total_points = rows;
+    if (mt.total_points < rows)
+      raise(kOther, "write_results: meta.total_points (" + std::to_string(mt.total_points) +
+                        ") is smaller than the " + std::to_string(rows) + " rows");
+    if (with_stats) {
+      const std::string e = validate_stats(st);
+      if (!e.empty()) raise(kOther, "write_results: " + e);  // same data, same result everywhere
+    }
   }
+  const bool whole = mt.shard.empty() && mt.total_points == rows;
 
   std::vector<const PointRecord*> recs;
   recs.reserve(local.size());
   for (const auto& r : local) recs.push_back(&r);
-  std::stable_sort(recs.begin(), recs.end(),
-                   [](const PointRecord* a, const PointRecord* b) { return a->index < b->index; });
+  std::stable_sort(recs.begin(), recs.end(), [](const PointRecord* a, const PointRecord* b) {
+    return row_of(*a) < row_of(*b);
+  });
   {
-    std::string e = validate(recs, ax, total_points);
+    std::string e = validate(recs, ax, rows, mt.total_points, whole);
     agree(comm, e.empty() ? kOk : kOther, e.empty() ? e : "write_results: " + e);
   }
-  // Coverage: every index exactly once over all ranks. The local indices are
-  // valid and unique, so count == total and union == all suffice.
+  // Coverage: every row exactly once over all ranks. The local rows are
+  // valid and unique, so count == rows and union == all suffice.
   {
     long long n = static_cast<long long>(recs.size()), sum = 0;
     MPI_Allreduce(&n, &sum, 1, MPI_LONG_LONG, MPI_SUM, comm);
-    const std::size_t nbytes = static_cast<std::size_t>((total_points + 7) / 8);
+    const std::size_t nbytes = static_cast<std::size_t>((rows + 7) / 8);
     std::vector<unsigned char> mine(nbytes, 0), all(nbytes, 0);
-    for (const auto* r : recs) mine[static_cast<std::size_t>(r->index / 8)] |= 1u << (r->index % 8);
+    for (const auto* r : recs) {
+      const std::int64_t row = row_of(*r);
+      mine[static_cast<std::size_t>(row / 8)] |= static_cast<unsigned char>(1u << (row % 8));
+    }
     const std::size_t chunk = 1u << 30;
     for (std::size_t off = 0; off < nbytes; off += chunk)
       MPI_Allreduce(mine.data() + off, all.data() + off, static_cast<int>(std::min(chunk, nbytes - off)),
                     MPI_UNSIGNED_CHAR, MPI_BOR, comm);
     std::int64_t missing = -1;
-    for (std::int64_t i = 0; i < total_points && missing < 0; ++i)
+    for (std::int64_t i = 0; i < rows && missing < 0; ++i)
       if (!(all[static_cast<std::size_t>(i / 8)] & (1u << (i % 8)))) missing = i;
     if (missing >= 0)
-      raise(kOther, "write_results: no rank passed point " + std::to_string(missing) + " of " +
-                        std::to_string(total_points));
-    if (sum != total_points)
+      raise(kOther, whole ? "write_results: no rank passed point " + std::to_string(missing) +
+                                " of " + std::to_string(rows)
+                          : "write_results: no rank passed a record for row " +
+                                std::to_string(missing) + " of " + std::to_string(rows));
+    if (sum != rows)
       raise(kOther, "write_results: " + std::to_string(sum) + " records for " +
-                        std::to_string(total_points) + " points: some point was passed by more "
-                                                       "than one rank");
+                        std::to_string(rows) + " rows: some row was passed by more than one rank");
+  }
+  // Unique global indices (implied by unique rows in a whole-run file).
+  if (!whole) {
+    std::string e = duplicate_index(comm, recs);
+    agree(comm, e.empty() ? kOk : kOther, e.empty() ? e : "write_results: " + e);
   }
 
   unsigned long long kmine = 0, K = 0;
@@ -582,7 +850,8 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
 
   std::string err;
   try {
-    write_file(comm, tmp, ax, mt, total_points, recs, static_cast<std::size_t>(K));
+    write_file(comm, tmp, ax, mt, rows, recs, static_cast<std::size_t>(K),
+               with_stats ? &st : nullptr);
   } catch (const std::exception& e) {
     err = e.what();
   }
@@ -603,6 +872,393 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   bcast(comm, pub.first);
   bcast(comm, pub.second);
   if (pub.first != kOk) raise(pub.first, pub.second);
+}
+
+// ---------------------------------------------------------------- reading
+
+namespace {
+
+std::string one_line(std::string s) {
+  for (char& ch : s)
+    if (ch == '\n' || ch == '\r') ch = ' ';
+  return s;
+}
+
+[[noreturn]] void bad_file(const std::string& path, const std::string& what) {
+  throw ResultFileError("read_results: '" + path + "': " + one_line(what));
+}
+
+// The innermost description on the HDF5 error stack (then cleared).
+std::string innermost_h5_error() {
+  std::vector<std::string> msgs;
+  H5Ewalk2(
+      H5E_DEFAULT, H5E_WALK_DOWNWARD,
+      [](unsigned, const H5E_error2_t* e, void* d) -> herr_t {
+        if (e->desc && *e->desc) static_cast<std::vector<std::string>*>(d)->push_back(e->desc);
+        return 0;
+      },
+      &msgs);
+  H5Eclear2(H5E_DEFAULT);
+  return msgs.empty() ? std::string("no HDF5 detail") : msgs.back();
+}
+
+std::string shape_text(const std::vector<hsize_t>& d) {
+  std::string s = "(";
+  for (std::size_t i = 0; i < d.size(); ++i) s += (i ? ", " : "") + std::to_string(d[i]);
+  return s + (d.size() == 1 ? ",)" : ")");
+}
+
+class Reader {
+ public:
+  Reader(std::string path, h5::File f) : path_(std::move(path)), f_(std::move(f)) {}
+
+  // Whether every component of `p` ("/a/b/c") exists.
+  bool has(const std::string& p) const {
+    if (p == "/") return true;
+    std::string cur;
+    std::size_t i = 1;
+    while (i <= p.size()) {
+      std::size_t j = p.find('/', i);
+      if (j == std::string::npos) j = p.size();
+      cur.push_back('/');
+      cur.append(p, i, j - i);
+      const htri_t r = H5Lexists(f_.id(), cur.c_str(), H5P_DEFAULT);
+      if (r < 0) bad_file(path_, "corrupt: cannot look up " + cur + " (" + innermost_h5_error() + ")");
+      if (r == 0) return false;
+      i = j + 1;
+    }
+    return true;
+  }
+
+  // Opens object `p`, which must exist and be of type `want` (an id to be
+  // closed with H5Oclose).
+  hid_t open(const std::string& p, H5I_type_t want, const char* what) const {
+    if (!has(p)) bad_file(path_, std::string("not a valid toral file: missing ") + what + " " + p);
+    const hid_t id = H5Oopen(f_.id(), p.c_str(), H5P_DEFAULT);
+    if (id < 0) bad_file(path_, "corrupt: cannot open " + p + " (" + innermost_h5_error() + ")");
+    if (H5Iget_type(id) != want) {
+      H5Oclose(id);
+      bad_file(path_, "not a valid toral file: " + p + " is not a " + what);
+    }
+    return id;
+  }
+  h5::Dataset dataset(const std::string& p) const {
+    return h5::Dataset(open(p, H5I_DATASET, "dataset"), H5Oclose, path_, p);
+  }
+  h5::Group group(const std::string& p) const {
+    return h5::Group(open(p, H5I_GROUP, "group"), H5Oclose, path_, p);
+  }
+
+  // A dataset whose shape must be `want`.
+  h5::Dataset shaped(const std::string& p, const std::vector<hsize_t>& want) const {
+    h5::Dataset d = dataset(p);
+    const auto got = h5::dims(d);
+    if (got != want)
+      bad_file(path_, "corrupt: " + p + " has shape " + shape_text(got) + ", expected " +
+                          shape_text(want));
+    return d;
+  }
+  std::vector<double> f64(const std::string& p, const std::vector<hsize_t>& want) const {
+    return h5::read_doubles(shaped(p, want));
+  }
+  std::vector<std::int64_t> i64(const std::string& p, const std::vector<hsize_t>& want) const {
+    return h5::read_int64s(shaped(p, want));
+  }
+  std::vector<std::int32_t> i32(const std::string& p, const std::vector<hsize_t>& want) const {
+    return h5::read_int32s(shaped(p, want));
+  }
+  // The trailing dimensions of a dataset whose first one must be P and whose
+  // rank must be `rank`.
+  std::vector<hsize_t> inner(const std::string& p, hsize_t P, std::size_t rank) const {
+    const auto d = h5::dims(dataset(p));
+    if (d.size() != rank || d[0] != P)
+      bad_file(path_, "corrupt: " + p + " has shape " + shape_text(d) + ", expected " +
+                          std::to_string(rank) + " axes and " + std::to_string(P) + " rows");
+    return {d.begin() + 1, d.end()};
+  }
+
+  // The length of a dataset that must be 1-D.
+  hsize_t length(const std::string& p) const {
+    const auto d = h5::dims(dataset(p));
+    if (d.size() != 1)
+      bad_file(path_, "corrupt: " + p + " has shape " + shape_text(d) + ", expected one axis");
+    return d[0];
+  }
+
+  void need_attr(const h5::Object& o, const std::string& name) const {
+    if (!h5::has_attr(o, name))
+      bad_file(path_, "not a valid toral file: missing attribute '" + name + "' of " + o.path());
+  }
+  std::string str(const h5::Object& o, const std::string& name) const {
+    need_attr(o, name);
+    return h5::read_attr_string(o, name);
+  }
+  std::string str_or(const h5::Object& o, const std::string& name, std::string dflt) const {
+    return h5::has_attr(o, name) ? h5::read_attr_string(o, name) : dflt;
+  }
+  std::vector<std::string> strs(const h5::Object& o, const std::string& name) const {
+    need_attr(o, name);
+    return h5::read_attr_strings(o, name);
+  }
+  std::int64_t int_attr(const h5::Object& o, const std::string& name) const {
+    need_attr(o, name);
+    return h5::read_attr_int(o, name);
+  }
+
+  const std::string& path() const { return path_; }
+  const h5::File& file() const { return f_; }
+
+ private:
+  std::string path_;
+  h5::File f_;
+};
+
+// Row i of width w of a flat array; empty when the row is all NaN (or w = 0).
+std::vector<double> row_or_empty(const std::vector<double>& v, std::size_t i, std::size_t w) {
+  const auto b = v.begin() + static_cast<std::ptrdiff_t>(i * w), e = b + static_cast<std::ptrdiff_t>(w);
+  if (std::all_of(b, e, [](double x) { return std::isnan(x); })) return {};
+  return {b, e};
+}
+
+ResultData read_file(const Reader& rd) {
+  ResultData out;
+  const std::string& path = rd.path();
+  h5::Group root = rd.group("/");
+  if (!h5::has_attr(root, "toral_version") || !h5::has_attr(root, "layout_version"))
+    bad_file(path, "not a toral result file (no root attributes toral_version and layout_version)");
+  const std::int64_t version = h5::read_attr_int(root, "layout_version");
+  if (version != kLayoutVersion)
+    bad_file(path, "unsupported layout version " + std::to_string(version) +
+                       " (this toral reads layout version " + std::to_string(kLayoutVersion) + ")");
+
+  RunMeta& mt = out.meta;
+  mt.toral_version = rd.str(root, "toral_version");
+  mt.config_text = rd.str(root, "config");
+  mt.config_source = rd.str(root, "config_source");
+  mt.created = rd.str(root, "created");
+  mt.ranks = rd.int_attr(root, "ranks");
+  mt.sweep_names = rd.strs(root, "sweep_names");
+  const std::int64_t P = rd.int_attr(root, "point_count");
+  if (P < 0) bad_file(path, "corrupt: negative point_count " + std::to_string(P));
+  out.rows = P;
+  mt.config_hash = rd.str_or(root, "config_hash", "");
+  mt.total_points = h5::has_attr(root, "total_points") ? h5::read_attr_int(root, "total_points") : P;
+  mt.shard = rd.str_or(root, "shard", "");
+  if (mt.total_points < P)
+    bad_file(path, "corrupt: total_points " + std::to_string(mt.total_points) + " < point_count " +
+                       std::to_string(P));
+
+  const hsize_t hP = static_cast<hsize_t>(P);
+  const std::size_t n = static_cast<std::size_t>(P);
+  RunAxes& ax = out.axes;
+  std::vector<PointRecord>& recs = out.records;
+  recs.resize(n);
+  for (std::size_t i = 0; i < n; ++i) recs[i].row = recs[i].index = static_cast<std::int64_t>(i);
+
+  auto each_f64 = [&](const std::vector<double>& v, double PointRecord::*m) {
+    for (std::size_t i = 0; i < n; ++i) recs[i].*m = v[i];
+  };
+  auto each_i64 = [&](const std::vector<std::int64_t>& v, std::int64_t PointRecord::*m) {
+    for (std::size_t i = 0; i < n; ++i) recs[i].*m = v[i];
+  };
+  auto each_row = [&](const std::vector<double>& v, std::size_t w,
+                      std::vector<double> PointRecord::*m) {
+    for (std::size_t i = 0; i < n; ++i) recs[i].*m = row_or_empty(v, i, w);
+  };
+
+  // ---- /points
+  {
+    h5::Group g = rd.group("/points");
+    ax.param_names = rd.strs(g, "parameters");
+    ax.swept = rd.strs(g, "swept");
+    for (auto& r : recs) r.params.resize(ax.param_names.size());
+    for (std::size_t p = 0; p < ax.param_names.size(); ++p) {
+      const std::string dp = "/points/" + ax.param_names[p];
+      h5::Dataset d = rd.shaped(dp, {hP});
+      ax.param_meanings.push_back(rd.str_or(d, "meaning", ""));
+      const auto v = h5::read_int64s(d);
+      for (std::size_t i = 0; i < n; ++i) recs[i].params[p] = v[i];
+    }
+    if (rd.has("/points/index")) {
+      const auto v = rd.i64("/points/index", {hP});
+      std::vector<std::int64_t> sorted = v;
+      std::sort(sorted.begin(), sorted.end());
+      if (!sorted.empty() && (sorted.front() < 0 || sorted.back() >= mt.total_points))
+        bad_file(path, "corrupt: /points/index outside 0.." + std::to_string(mt.total_points - 1));
+      if (std::adjacent_find(sorted.begin(), sorted.end()) != sorted.end())
+        bad_file(path, "corrupt: /points/index holds a point twice");
+      each_i64(v, &PointRecord::index);
+    }
+    const auto st = rd.i32("/points/status", {hP});
+    const auto me = rd.i32("/points/method", {hP});
+    for (std::size_t i = 0; i < n; ++i) {
+      recs[i].status = st[i];
+      recs[i].method = me[i];
+    }
+    const auto msg = h5::read_fixed_strings(rd.shaped("/points/message", {hP}));
+    for (std::size_t i = 0; i < n; ++i) recs[i].message = msg[i];
+    each_f64(rd.f64("/points/wall_time", {hP}), &PointRecord::wall_time);
+  }
+
+  // ---- /chaos
+  {
+    rd.group("/chaos");
+    each_f64(rd.f64("/chaos/lambda_max", {hP}), &PointRecord::lambda_max);
+    each_f64(rd.f64("/chaos/ks_rate", {hP}), &PointRecord::ks_rate);
+    each_f64(rd.f64("/chaos/ks_density", {hP}), &PointRecord::ks_density);
+    each_i64(rd.i64("/chaos/unstable_count", {hP}), &PointRecord::unstable_count);
+    const hsize_t K = rd.inner("/chaos/exponents", hP, 2)[0];
+    const std::size_t k = static_cast<std::size_t>(K);
+    const auto ex = rd.f64("/chaos/exponents", {hP, K});
+    const auto cnt = rd.i64("/chaos/exponent_count", {hP});
+    std::vector<double> er;
+    if (rd.has("/chaos/exponent_error")) er = rd.f64("/chaos/exponent_error", {hP, K});
+    for (std::size_t i = 0; i < n; ++i) {
+      if (cnt[i] < 0 || static_cast<hsize_t>(cnt[i]) > K)
+        bad_file(path, "corrupt: /chaos/exponent_count[" + std::to_string(i) + "] = " +
+                           std::to_string(cnt[i]) + " outside 0.." + std::to_string(K));
+      const auto b = static_cast<std::ptrdiff_t>(i * k), c = static_cast<std::ptrdiff_t>(cnt[i]);
+      recs[i].exponents.assign(ex.begin() + b, ex.begin() + b + c);
+      if (!er.empty()) {
+        recs[i].exponent_errors.assign(er.begin() + b, er.begin() + b + c);
+        if (std::all_of(recs[i].exponent_errors.begin(), recs[i].exponent_errors.end(),
+                        [](double x) { return std::isnan(x); }))
+          recs[i].exponent_errors.clear();
+      }
+    }
+    each_f64(rd.f64("/chaos/accuracy/pairing_defect", {hP}), &PointRecord::pairing_defect);
+    each_f64(rd.f64("/chaos/accuracy/sum_defect", {hP}), &PointRecord::sum_defect);
+    each_f64(rd.f64("/chaos/accuracy/error_bound", {hP}), &PointRecord::error_bound);
+    const hsize_t B = rd.inner("/chaos/histogram/counts", hP, 2)[0], E = B ? B + 1 : 0;
+    ax.hist_bins = static_cast<int>(B);
+    if (static_cast<hsize_t>(ax.hist_bins) != B)
+      bad_file(path, "corrupt: /chaos/histogram/counts has " + std::to_string(B) + " bins");
+    each_row(rd.f64("/chaos/histogram/counts", {hP, B}), static_cast<std::size_t>(B),
+             &PointRecord::hist_counts);
+    each_row(rd.f64("/chaos/histogram/edges", {hP, E}), static_cast<std::size_t>(E),
+             &PointRecord::hist_edges);
+    if (rd.has("/chaos/solver")) {
+      if (rd.has("/chaos/solver/method")) {
+        const auto v = rd.i32("/chaos/solver/method", {hP});
+        for (std::size_t i = 0; i < n; ++i) recs[i].solver = v[i];
+      }
+      auto opt_i64 = [&](const char* name, std::int64_t PointRecord::*m) {
+        const std::string dp = std::string("/chaos/solver/") + name;
+        if (rd.has(dp)) each_i64(rd.i64(dp, {hP}), m);
+      };
+      auto opt_f64 = [&](const char* name, double PointRecord::*m) {
+        const std::string dp = std::string("/chaos/solver/") + name;
+        if (rd.has(dp)) each_f64(rd.f64(dp, {hP}), m);
+      };
+      opt_i64("converged", &PointRecord::solver_converged);
+      opt_i64("iterations", &PointRecord::solver_iterations);
+      opt_f64("residual", &PointRecord::solver_residual);
+      opt_f64("wall_time", &PointRecord::solver_time);
+      opt_i64("ranks", &PointRecord::solver_ranks);
+      opt_i64("cluster_count", &PointRecord::cluster_count);
+      opt_f64("cluster_spread", &PointRecord::cluster_spread);
+    }
+
+    // ---- /limit
+    ax.bulk_limit = rd.has("/limit");
+    if (ax.bulk_limit) {
+      rd.group("/limit");
+      each_f64(rd.f64("/limit/lambda_max", {hP}), &PointRecord::limit_lambda_max);
+      each_f64(rd.f64("/limit/ks_density", {hP}), &PointRecord::limit_ks_density);
+      each_f64(rd.f64("/limit/accuracy", {hP}), &PointRecord::limit_accuracy);
+      each_row(rd.f64("/limit/histogram/counts", {hP, B}), static_cast<std::size_t>(B),
+               &PointRecord::limit_hist_counts);
+      each_row(rd.f64("/limit/histogram/edges", {hP, E}), static_cast<std::size_t>(E),
+               &PointRecord::limit_hist_edges);
+    }
+  }
+
+  // ---- /bounds
+  {
+    rd.group("/bounds");
+    const hsize_t L = rd.length("/bounds/region_size"), N = rd.length("/bounds/local_dim");
+    ax.region_sizes = rd.i64("/bounds/region_size", {L});
+    ax.local_dims = rd.i64("/bounds/local_dim", {N});
+    const std::size_t l = static_cast<std::size_t>(L), m = static_cast<std::size_t>(N);
+    each_i64(rd.i64("/bounds/cuts", {hP}), &PointRecord::cuts);
+    each_row(rd.f64("/bounds/lyapunov_rate", {hP, L}), l, &PointRecord::lyapunov_rate);
+    each_row(rd.f64("/bounds/hilbert_cap", {hP, L, N}), l * m, &PointRecord::hilbert_cap);
+    each_row(rd.f64("/bounds/lightcone_rate", {hP, N}), m, &PointRecord::lightcone_rate);
+    each_row(rd.f64("/bounds/ehrenfest_time", {hP, N}), m, &PointRecord::ehrenfest_time);
+    each_row(rd.f64("/bounds/saturation_lyapunov", {hP, L, N}), l * m,
+             &PointRecord::saturation_lyapunov);
+    each_row(rd.f64("/bounds/saturation_lightcone", {hP, L, N}), l * m,
+             &PointRecord::saturation_lightcone);
+  }
+
+  // ---- /stats
+  if (rd.has("/stats")) {
+    h5::Group g = rd.group("/stats");
+    EnsembleStats& st = out.stats;
+    st.param_names = rd.strs(g, "parameters");
+    const std::vector<std::string> cols = rd.strs(g, "columns");
+    const hsize_t G = rd.length("/stats/count");
+    st.count = rd.i64("/stats/count", {G});
+    const std::size_t np = st.param_names.size(), ng = static_cast<std::size_t>(G);
+    st.params.assign(ng * np, 0);
+    for (std::size_t p = 0; p < np; ++p) {
+      const auto v = rd.i64("/stats/" + st.param_names[p], {G});
+      for (std::size_t i = 0; i < ng; ++i) st.params[i * np + p] = v[i];
+    }
+    for (const auto& name : cols) {
+      StatsColumn c;
+      c.name = name;
+      const std::string base = "/stats/" + name;
+      h5::Group cg = rd.group(base);
+      c.units = rd.str_or(cg, "units", "");
+      c.meaning = rd.str_or(cg, "meaning", "");
+      const auto d = h5::dims(rd.dataset(base + "/mean"));
+      if (d.empty() || d[0] != G)
+        bad_file(path, "corrupt: " + base + "/mean has shape " + shape_text(d) + ", expected " +
+                           std::to_string(G) + " rows");
+      for (std::size_t a = 1; a < d.size(); ++a) c.inner.push_back(d[a]);
+      c.mean = rd.f64(base + "/mean", d);
+      c.std = rd.f64(base + "/std", d);
+      c.sem = rd.f64(base + "/sem", d);
+      c.median = rd.f64(base + "/median", d);
+      st.columns.push_back(std::move(c));
+    }
+  }
+  return out;
+}
+
+}  // namespace
+
+ResultData read_results(const std::string& path) {
+  h5::QuietErrors quiet;
+  {
+    std::error_code ec;
+    const fs::file_status s = fs::status(path, ec);
+    if (!fs::exists(s)) throw ResultFileError("read_results: '" + path + "': no such file");
+    if (fs::is_directory(s)) throw ResultFileError("read_results: '" + path + "': is a directory");
+    if (::access(path.c_str(), R_OK) != 0)
+      throw ResultFileError("read_results: '" + path + "': cannot read it: " + std::strerror(errno));
+  }
+  const htri_t is_h5 = H5Fis_hdf5(path.c_str());
+  if (is_h5 == 0) bad_file(path, "not a toral result file (not an HDF5 file)");
+  H5Eclear2(H5E_DEFAULT);
+  try {
+    // Plain serial access (sec2 driver), read-only.
+    h5::PropList fapl(H5Pcreate(H5P_FILE_ACCESS), H5Pclose, path, "/");
+    // Closing the file closes everything still open in it, also after a
+    // failure deep inside a corrupt file.
+    if (!fapl || H5Pset_fapl_sec2(fapl.id()) < 0 ||
+        H5Pset_fclose_degree(fapl.id(), H5F_CLOSE_STRONG) < 0)
+      bad_file(path, "cannot set up HDF5 file access (" + innermost_h5_error() + ")");
+    const hid_t f = H5Fopen(path.c_str(), H5F_ACC_RDONLY, fapl.id());
+    if (f < 0) bad_file(path, "corrupt: HDF5 cannot open it (" + innermost_h5_error() + ")");
+    Reader rd(path, h5::File(f, H5Fclose, path, "/"));
+    return read_file(rd);
+  } catch (const ResultFileError&) {
+    throw;
+  } catch (const std::exception& e) {
+    bad_file(path, std::string("corrupt: ") + e.what());
+  }
 }
 
 }  // namespace toral

@@ -15,6 +15,7 @@
 #include <string>
 #include <vector>
 
+#include "common.hpp"
 #include "record.hpp"
 
 namespace toral {
@@ -27,11 +28,9 @@ constexpr std::int64_t kLayoutVersion = 1;
 // truncated on a UTF-8 boundary to kMessageBytes - 1 bytes).
 constexpr std::size_t kMessageBytes = 256;
 
-// Any failure of write_results / check_output_target other than HDF5's own
-// (those are h5::Error). Thrown on every rank with the same message.
-struct ResultFileError : std::runtime_error {
-  using std::runtime_error::runtime_error;
-};
+// ResultFileError (common.hpp): any failure of write_results /
+// check_output_target other than HDF5's own (those are h5::Error), thrown on
+// every rank with the same message; also every failure of read_results.
 
 // The output path exists and overwrite was not requested.
 struct OutputExistsError : ResultFileError {
@@ -49,11 +48,22 @@ bool output_exists(const std::string& path);
 // computation; write_results repeats it.
 void check_output_target(MPI_Comm comm, const std::string& path, bool overwrite);
 
-// Collective on `comm`. Writes the result file of a run of `total_points`
-// points. Each rank passes the records it computed (any subset, any order);
-// over all ranks the indices must cover 0 .. total_points-1 exactly once.
-// Axes and meta are taken from rank 0 (broadcast), so they need only be
-// filled correctly there; total_points must agree on all ranks.
+// Collective on `comm`. Writes a result file of `rows` rows. Each rank
+// passes the records it holds (any subset, any order). A record goes to row
+// `row` of the file (row = -1 means row = index); over all ranks the rows
+// must cover 0 .. rows-1 exactly once, and the global point indices `index`
+// must be unique and lie in 0 .. total_points-1 (total_points =
+// meta.total_points, or `rows` when that is 0). A file with shard = "" and
+// total_points = rows is a whole run: there row must equal index.
+// Axes, meta and stats are taken from rank 0 (broadcast), so they need only
+// be filled correctly there (other ranks may pass nullptr stats); `rows`
+// must agree on all ranks. An empty meta.config_hash is filled with
+// config_hash_of(meta.config_text).
+//
+// `stats` (rank 0's), when non-null with at least one group, is written as
+// /stats (docs/layout.md). Column names must be unique, not "count", not a
+// stats parameter name and contain no '/'; every array must have the
+// documented length.
 //
 // The file is written to a sibling temporary `path + ".partial.<id>"` and
 // renamed onto `path` by rank 0 only after it was closed successfully. An
@@ -67,14 +77,43 @@ void check_output_target(MPI_Comm comm, const std::string& path, bool overwrite)
 // The dataset contents depend only on the records, not on the number of
 // ranks or the distribution.
 void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const RunAxes& axes,
-                   const RunMeta& meta, std::int64_t total_points,
-                   const std::vector<PointRecord>& local);
+                   const RunMeta& meta, std::int64_t rows, const std::vector<PointRecord>& local,
+                   const EnsembleStats* stats = nullptr);
+
+// Everything read_results gets back from a file.
+struct ResultData {
+  RunAxes axes;   // param_meanings from each /points/<name> "meaning" attribute
+  RunMeta meta;   // for files without the newer attributes: config_hash "",
+                  // total_points = rows, shard ""
+  std::int64_t rows = 0;              // root attribute point_count
+  std::vector<PointRecord> records;   // in row order; records[i].row == i
+  EnsembleStats stats;                // groups() == 0 when the file has no /stats
+};
+
+// Serial (no MPI needed; plain sec2 file access). Reads a layout-1 result
+// file back. Validates that it is a toral file (root attributes
+// toral_version, layout_version == 1, every layout-1 dataset present with
+// consistent shapes) and throws ResultFileError with a one-line message
+// naming the file otherwise ("not a toral result file", "unsupported layout
+// version", "missing dataset /x/y", "corrupt: ..."). HDF5's automatic error
+// printing is off while it runs.
+//
+// The records are those written, field by field, with these exceptions that
+// the file cannot tell apart: `row` is the actual row (never -1); exponents
+// and exponent_errors are cut to /chaos/exponent_count entries;
+// exponent_errors and the fixed-width vectors (histograms, bounds) come back
+// empty where the file row is all NaN; messages are truncated to
+// kMessageBytes - 1 bytes; `index` is the row for files without
+// /points/index. Objects added by later toral versions are ignored.
+ResultData read_results(const std::string& path);
 
 // ISO 8601 UTC time of now, e.g. "2024-05-01T12:34:56Z" (for RunMeta::created).
 std::string iso8601_utc_now();
 
-// Labels of /points/status codes and /points/method values, indexed by value.
+// Labels of /points/status codes, /points/method values and
+// /chaos/solver/method values, indexed by value.
 const std::vector<std::string>& status_labels();
 const std::vector<std::string>& method_labels();
+const std::vector<std::string>& solver_labels();
 
 }  // namespace toral

@@ -65,7 +65,7 @@ std::int64_t draw_uniform(std::uint64_t seed, std::uint64_t point_key, std::uint
 }
 
 std::uint64_t fnv1a64(const std::string& s) {
-  std::uint64_t h = 1469598103934665603ULL;
+  std::uint64_t h = 14695981039346656037ULL;  // FNV-1a 64-bit offset basis
   for (unsigned char c : s) {
     h ^= c;
     h *= 1099511628211ULL;

@@ -4,6 +4,7 @@
 #include <gtest/gtest.h>
 #include <hdf5.h>
 #include <mpi.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <cmath>
@@ -52,7 +53,7 @@ constexpr std::int64_t kP = 11;  // points
 const std::vector<std::int64_t> kEll = {1, 2, 3};
 const std::vector<std::int64_t> kN = {2, 5};
 constexpr int kBins = 4;
-constexpr std::int64_t kFailed = 3, kFailedLong = 7, kNoBounds = 6;
+constexpr std::int64_t kFailed = 3, kFailedLong = 7, kNoBounds = 6, kPending = 9;
 
 RunAxes make_axes(bool bulk = true) {
   RunAxes a;
@@ -96,6 +97,10 @@ PointRecord make_record(std::int64_t i) {
     r.wall_time = 0.25;
     return r;  // everything else NaN / empty / -1
   }
+  if (i == kPending) {
+    r.status = static_cast<std::int32_t>(PointStatus::Pending);
+    return r;  // not computed yet: defaults everywhere
+  }
   const double x = static_cast<double>(i);
   r.method = static_cast<std::int32_t>(1 + i % 3);
   r.wall_time = 0.1 * x + 0.01;
@@ -105,6 +110,18 @@ PointRecord make_record(std::int64_t i) {
   r.unstable_count = i;
   const std::size_t n = 1 + static_cast<std::size_t>((i * 3) % 7);  // ragged: 1..7
   for (std::size_t k = 0; k < n; ++k) r.exponents.push_back(x + 0.1 * static_cast<double>(n - k));
+  if (i % 3 != 0) {  // some points estimate no per-exponent errors
+    for (std::size_t k = 0; k < n; ++k) r.exponent_errors.push_back(1e-13 * static_cast<double>(k + 1) + x * 1e-15);
+    if (i == 4) r.exponent_errors[0] = kNaN;  // one not estimated
+  }
+  r.solver = static_cast<std::int32_t>(1 + i % 5);
+  r.solver_converged = static_cast<std::int64_t>(n);
+  r.solver_iterations = 10 + i;
+  r.solver_residual = 1e-14 * (x + 1);
+  r.solver_time = 0.05 * x;
+  r.solver_ranks = 1 + i % 2;
+  r.cluster_count = 1 + i % 3;
+  r.cluster_spread = 1e-9 * x;
   r.pairing_defect = 1e-12 * x;
   r.sum_defect = 2e-12 * x;
   r.error_bound = 3e-12 * x;
@@ -322,6 +339,10 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   EXPECT_EQ(attr_int(f, "/", "ranks"), meta.ranks);
   EXPECT_EQ(attr_int(f, "/", "point_count"), P);
   EXPECT_EQ(attr_strings(f, "/", "sweep_names"), meta.sweep_names);
+  EXPECT_EQ(attr_string(f, "/", "config_hash"),
+            meta.config_hash.empty() ? config_hash_of(meta.config_text) : meta.config_hash);
+  EXPECT_EQ(attr_int(f, "/", "total_points"), meta.total_points ? meta.total_points : P);
+  EXPECT_EQ(attr_string(f, "/", "shard"), meta.shard);
 
   // /points
   EXPECT_EQ(attr_strings(f, "/points", "swept"), ax.swept);
@@ -332,6 +353,7 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
     expect_i64(f, path, [p](const PointRecord& r) { return r.params[p]; }, recs);
     EXPECT_EQ(attr_string(f, path, "meaning"), ax.param_meanings[p]);
   }
+  expect_i64(f, "/points/index", [](const PointRecord& r) { return r.index; }, recs);
   ASSERT_TRUE(link_exists(f, "/points/status"));
   EXPECT_TRUE(type_is(f, "/points/status", H5T_STD_I32LE));
   EXPECT_TRUE(type_is(f, "/points/method", H5T_STD_I32LE));
@@ -346,7 +368,8 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   EXPECT_EQ(attr_strings(f, "/points/method", "labels"),
             (std::vector<std::string>{"none", "bloch", "dense", "krylov"}));
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[0], "ok");
-  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 6u);
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 7u);
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels")[6], "pending");
   {
     ASSERT_TRUE(link_exists(f, "/points/message"));
     EXPECT_EQ(shape_of(f, "/points/message"), std::vector<hsize_t>{hP});
@@ -384,6 +407,24 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   expect_f64(f, "/chaos/exponents", {hP, K}, [K](const PointRecord& r) { return pad(r.exponents, K); }, recs);
   expect_i64(f, "/chaos/exponent_count",
              [](const PointRecord& r) { return static_cast<std::int64_t>(r.exponents.size()); }, recs);
+  expect_f64(f, "/chaos/exponent_error", {hP, K}, [K](const PointRecord& r) { return pad(r.exponent_errors, K); }, recs);
+  {
+    ASSERT_TRUE(link_exists(f, "/chaos/solver/method"));
+    EXPECT_EQ(shape_of(f, "/chaos/solver/method"), std::vector<hsize_t>{hP});
+    EXPECT_TRUE(type_is(f, "/chaos/solver/method", H5T_STD_I32LE));
+    const auto sv = read_raw<std::int32_t>(f, "/chaos/solver/method", H5T_NATIVE_INT32);
+    ASSERT_EQ(sv.size(), hP);
+    for (std::size_t i = 0; i < hP; ++i) EXPECT_EQ(sv[i], recs[i].solver) << i;
+    EXPECT_EQ(attr_strings(f, "/chaos/solver/method", "labels"),
+              (std::vector<std::string>{"none", "lapack", "bloch_exact", "krylov_schur", "shift_invert", "tangent"}));
+  }
+  expect_i64(f, "/chaos/solver/converged", [](const PointRecord& r) { return r.solver_converged; }, recs);
+  expect_i64(f, "/chaos/solver/iterations", [](const PointRecord& r) { return r.solver_iterations; }, recs);
+  expect_f64(f, "/chaos/solver/residual", {hP}, [](const PointRecord& r) { return std::vector{r.solver_residual}; }, recs);
+  expect_f64(f, "/chaos/solver/wall_time", {hP}, [](const PointRecord& r) { return std::vector{r.solver_time}; }, recs);
+  expect_i64(f, "/chaos/solver/ranks", [](const PointRecord& r) { return r.solver_ranks; }, recs);
+  expect_i64(f, "/chaos/solver/cluster_count", [](const PointRecord& r) { return r.cluster_count; }, recs);
+  expect_f64(f, "/chaos/solver/cluster_spread", {hP}, [](const PointRecord& r) { return std::vector{r.cluster_spread}; }, recs);
   expect_f64(f, "/chaos/accuracy/pairing_defect", {hP}, [](const PointRecord& r) { return std::vector{r.pairing_defect}; }, recs);
   expect_f64(f, "/chaos/accuracy/sum_defect", {hP}, [](const PointRecord& r) { return std::vector{r.sum_defect}; }, recs);
   expect_f64(f, "/chaos/accuracy/error_bound", {hP}, [](const PointRecord& r) { return std::vector{r.error_bound}; }, recs);
@@ -418,6 +459,12 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   // units and meaning on every dataset; the documented units pinned
   const std::map<std::string, std::string> units = {
       {"/points/wall_time", "s"},
+      {"/points/index", "1"},
+      {"/chaos/exponent_error", "1/period"},
+      {"/chaos/solver/method", ""},
+      {"/chaos/solver/residual", "1"},
+      {"/chaos/solver/wall_time", "s"},
+      {"/chaos/solver/cluster_spread", "1/period"},
       {"/chaos/lambda_max", "1/period"},
       {"/chaos/ks_rate", "nats/period"},
       {"/chaos/ks_density", "nats/(period*site)"},
@@ -433,7 +480,9 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/bounds/saturation_lightcone", "periods"},
   };
   const auto all = datasets_of(f);
-  const std::size_t expected_count = ax.param_names.size() + 4 + 11 + (ax.bulk_limit ? 5 : 0) + 9;
+  // /points: params + index, status, message, method, wall_time; /chaos: 12
+  // + 8 in /chaos/solver; /limit: 5; /bounds: 9
+  const std::size_t expected_count = ax.param_names.size() + 5 + 12 + 8 + (ax.bulk_limit ? 5 : 0) + 9;
   EXPECT_EQ(all.size(), expected_count);
   for (const auto& d : all) {
     h5::Object o(H5Oopen(f, d.c_str(), H5P_DEFAULT), H5Oclose, path, d);
@@ -860,6 +909,587 @@ TEST(ResultFile, MetadataFromRankZero) {
   on_rank0([&] {
     RFile rf(p);
     EXPECT_EQ(attr_string(rf.id, "/", "created"), make_meta().created);
+  });
+}
+
+// ---------------------------------------------------------------- shards, stats, read-back
+
+namespace {
+
+std::uint64_t bits(double x) {
+  std::uint64_t u;
+  std::memcpy(&u, &x, sizeof u);
+  return u;
+}
+
+// What read_results gives back for record `r` stored in row `row`.
+PointRecord canonical(PointRecord r, std::int64_t row) {
+  r.row = row;
+  r.message = h5::truncate_utf8(r.message, kMessageBytes - 1);
+  auto canon = [](std::vector<double>& v) {
+    if (std::all_of(v.begin(), v.end(), [](double x) { return std::isnan(x); })) v.clear();
+  };
+  for (auto* v : {&r.exponent_errors, &r.hist_counts, &r.hist_edges, &r.limit_hist_counts,
+                  &r.limit_hist_edges, &r.lyapunov_rate, &r.hilbert_cap, &r.lightcone_rate,
+                  &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone})
+    canon(*v);
+  return r;
+}
+
+// Field-by-field equality, doubles compared as raw bits.
+void expect_same_record(const PointRecord& a, const PointRecord& b, const std::string& where) {
+  SCOPED_TRACE(where);
+  auto d = [](double x, double y, const char* name) { EXPECT_EQ(bits(x), bits(y)) << name << ": " << x << " vs " << y; };
+  auto v = [](const std::vector<double>& x, const std::vector<double>& y, const char* name) {
+    ASSERT_EQ(x.size(), y.size()) << name;
+    for (std::size_t i = 0; i < x.size(); ++i) EXPECT_EQ(bits(x[i]), bits(y[i])) << name << "[" << i << "]";
+  };
+  EXPECT_EQ(a.index, b.index);
+  EXPECT_EQ(a.row, b.row);
+  EXPECT_EQ(a.params, b.params);
+  EXPECT_EQ(a.status, b.status);
+  EXPECT_EQ(a.message, b.message);
+  EXPECT_EQ(a.method, b.method);
+  d(a.wall_time, b.wall_time, "wall_time");
+  d(a.lambda_max, b.lambda_max, "lambda_max");
+  d(a.ks_rate, b.ks_rate, "ks_rate");
+  d(a.ks_density, b.ks_density, "ks_density");
+  EXPECT_EQ(a.unstable_count, b.unstable_count);
+  v(a.exponents, b.exponents, "exponents");
+  v(a.exponent_errors, b.exponent_errors, "exponent_errors");
+  d(a.pairing_defect, b.pairing_defect, "pairing_defect");
+  d(a.sum_defect, b.sum_defect, "sum_defect");
+  d(a.error_bound, b.error_bound, "error_bound");
+  EXPECT_EQ(a.solver, b.solver);
+  EXPECT_EQ(a.solver_converged, b.solver_converged);
+  EXPECT_EQ(a.solver_iterations, b.solver_iterations);
+  d(a.solver_residual, b.solver_residual, "solver_residual");
+  d(a.solver_time, b.solver_time, "solver_time");
+  EXPECT_EQ(a.solver_ranks, b.solver_ranks);
+  EXPECT_EQ(a.cluster_count, b.cluster_count);
+  d(a.cluster_spread, b.cluster_spread, "cluster_spread");
+  v(a.hist_counts, b.hist_counts, "hist_counts");
+  v(a.hist_edges, b.hist_edges, "hist_edges");
+  d(a.limit_lambda_max, b.limit_lambda_max, "limit_lambda_max");
+  d(a.limit_ks_density, b.limit_ks_density, "limit_ks_density");
+  d(a.limit_accuracy, b.limit_accuracy, "limit_accuracy");
+  v(a.limit_hist_counts, b.limit_hist_counts, "limit_hist_counts");
+  v(a.limit_hist_edges, b.limit_hist_edges, "limit_hist_edges");
+  EXPECT_EQ(a.cuts, b.cuts);
+  v(a.lyapunov_rate, b.lyapunov_rate, "lyapunov_rate");
+  v(a.hilbert_cap, b.hilbert_cap, "hilbert_cap");
+  v(a.lightcone_rate, b.lightcone_rate, "lightcone_rate");
+  v(a.ehrenfest_time, b.ehrenfest_time, "ehrenfest_time");
+  v(a.saturation_lyapunov, b.saturation_lyapunov, "saturation_lyapunov");
+  v(a.saturation_lightcone, b.saturation_lightcone, "saturation_lightcone");
+}
+
+void expect_same_axes(const RunAxes& a, const RunAxes& b) {
+  EXPECT_EQ(a.param_names, b.param_names);
+  EXPECT_EQ(a.param_meanings, b.param_meanings);
+  EXPECT_EQ(a.swept, b.swept);
+  EXPECT_EQ(a.region_sizes, b.region_sizes);
+  EXPECT_EQ(a.local_dims, b.local_dims);
+  EXPECT_EQ(a.hist_bins, b.hist_bins);
+  EXPECT_EQ(a.bulk_limit, b.bulk_limit);
+}
+
+void expect_same_meta(const RunMeta& a, const RunMeta& b) {
+  EXPECT_EQ(a.toral_version, b.toral_version);
+  EXPECT_EQ(a.config_text, b.config_text);
+  EXPECT_EQ(a.config_source, b.config_source);
+  EXPECT_EQ(a.created, b.created);
+  EXPECT_EQ(a.ranks, b.ranks);
+  EXPECT_EQ(a.sweep_names, b.sweep_names);
+  EXPECT_EQ(a.config_hash, b.config_hash);
+  EXPECT_EQ(a.total_points, b.total_points);
+  EXPECT_EQ(a.shard, b.shard);
+}
+
+// The points of the shard, in row order (deliberately not sorted).
+const std::vector<std::int64_t> kShard = {10, 2, 7, 4, 0, 9, 3};
+
+// This rank's records of the shard: row j holds point kShard[j]; rows dealt
+// cyclically, each share reversed.
+std::vector<PointRecord> my_shard_records() {
+  std::vector<PointRecord> v;
+  for (std::size_t j = 0; j < kShard.size(); ++j)
+    if (static_cast<int>(j % static_cast<std::size_t>(g_size)) == g_rank) {
+      PointRecord r = make_record(kShard[j]);
+      r.row = static_cast<std::int64_t>(j);
+      v.push_back(r);
+    }
+  std::reverse(v.begin(), v.end());
+  return v;
+}
+
+RunMeta shard_meta() {
+  RunMeta m = make_meta("shard");
+  m.total_points = kP;
+  m.shard = "2/3";
+  return m;  // config_hash left empty: the writer fills it in
+}
+
+// Stats of 3 groups over (sweep, sites) with vector columns of every shape.
+EnsembleStats make_stats() {
+  EnsembleStats st;
+  st.param_names = {"sweep", "sites"};
+  st.params = {0, 4, 1, 6, 0, 8};
+  st.count = {3, 1, 0};
+  auto column = [&](const std::string& name, std::vector<std::uint64_t> inner, const std::string& units) {
+    StatsColumn c;
+    c.name = name;
+    c.inner = inner;
+    c.units = units;
+    c.meaning = "statistics of " + name;
+    std::size_t w = 1;
+    for (auto x : inner) w *= x;
+    for (std::size_t g = 0; g < st.count.size(); ++g)
+      for (std::size_t k = 0; k < w; ++k) {
+        const double base = 100.0 * static_cast<double>(g) + static_cast<double>(k) + 0.125 * name.size();
+        const bool none = st.count[g] == 0, one = st.count[g] < 2;
+        c.mean.push_back(none ? kNaN : base);
+        c.std.push_back(one ? kNaN : 0.5 + static_cast<double>(k));
+        c.sem.push_back(one ? kNaN : (0.5 + static_cast<double>(k)) / std::sqrt(static_cast<double>(st.count[g])));
+        c.median.push_back(none ? kNaN : base - 0.25);
+      }
+    st.columns.push_back(c);
+  };
+  column("lambda_max", {}, "1/period");
+  column("lyapunov_rate", {kEll.size()}, "nats/period");
+  column("hilbert_cap", {kEll.size(), kN.size()}, "nats");
+  column("ehrenfest_time", {kN.size()}, "periods");
+  return st;
+}
+
+// Runs `f` with stderr redirected to a file; returns what was printed.
+std::string stderr_of(const std::function<void()>& f) {
+  const std::string p = scratch("stderr.txt");
+  std::fflush(stderr);
+  const int saved = dup(2);
+  FILE* tmp = std::fopen(p.c_str(), "w");
+  dup2(fileno(tmp), 2);
+  try {
+    f();
+  } catch (...) {
+    std::fflush(stderr);
+    dup2(saved, 2);
+    close(saved);
+    std::fclose(tmp);
+    throw;
+  }
+  std::fflush(stderr);
+  dup2(saved, 2);
+  close(saved);
+  std::fclose(tmp);
+  return slurp(p);
+}
+
+// read_results(path) must throw ResultFileError with a one-line message
+// naming the file and containing `needle`, and HDF5 must print nothing.
+void expect_read_error(const std::string& path, const std::string& needle) {
+  std::string msg;
+  const std::string printed = stderr_of([&] {
+    try {
+      read_results(path);
+      ADD_FAILURE() << "read_results(" << path << ") did not throw (" << needle << ")";
+    } catch (const ResultFileError& e) {
+      msg = e.what();
+    }
+  });
+  EXPECT_NE(msg.find(path), std::string::npos) << msg;
+  EXPECT_NE(msg.find(needle), std::string::npos) << msg;
+  EXPECT_EQ(msg.find('\n'), std::string::npos) << msg;
+  EXPECT_TRUE(printed.empty()) << "printed to stderr:\n" << printed;
+}
+
+// Serial edits of a copy of a result file.
+struct EditFile {
+  hid_t id;
+  explicit EditFile(const std::string& p) : id(H5Fopen(p.c_str(), H5F_ACC_RDWR, H5P_DEFAULT)) {}
+  ~EditFile() {
+    if (id >= 0) H5Fclose(id);
+  }
+};
+
+}  // namespace
+
+TEST(ResultFile, ShardSubsetHasGlobalIndices) {
+  const std::string p = scratch("shard.h5");
+  const std::int64_t rows = static_cast<std::int64_t>(kShard.size());
+  write_results(MPI_COMM_WORLD, p, false, make_axes(), shard_meta(), rows, my_shard_records());
+  barrier();
+  on_rank0([&] {
+    {
+      RFile rf(p);
+      ASSERT_GE(rf.id, 0);
+      EXPECT_EQ(attr_int(rf.id, "/", "point_count"), rows);
+      EXPECT_EQ(attr_int(rf.id, "/", "total_points"), kP);
+      EXPECT_EQ(attr_string(rf.id, "/", "shard"), "2/3");
+      EXPECT_EQ(attr_string(rf.id, "/", "config_hash"), config_hash_of(shard_meta().config_text));
+      EXPECT_EQ(attr_string(rf.id, "/", "config_hash").size(), 16u);
+      EXPECT_TRUE(type_is(rf.id, "/points/index", H5T_STD_I64LE));
+      EXPECT_EQ(read_raw<std::int64_t>(rf.id, "/points/index", H5T_NATIVE_INT64), kShard);
+      const auto sites = read_raw<std::int64_t>(rf.id, "/points/sites", H5T_NATIVE_INT64);
+      const auto lam = read_raw<double>(rf.id, "/chaos/lambda_max", H5T_NATIVE_DOUBLE);
+      ASSERT_EQ(sites.size(), kShard.size());
+      for (std::size_t j = 0; j < kShard.size(); ++j) {
+        EXPECT_EQ(sites[j], make_record(kShard[j]).params[1]) << j;
+        EXPECT_TRUE(same(lam[j], make_record(kShard[j]).lambda_max)) << j;
+      }
+      EXPECT_EQ(shape_of(rf.id, "/chaos/exponent_error"), (std::vector<hsize_t>{kShard.size(), 7}));
+    }
+    const ResultData d = read_results(p);
+    EXPECT_EQ(d.rows, rows);
+    RunMeta want = shard_meta();
+    want.config_hash = config_hash_of(want.config_text);
+    expect_same_meta(d.meta, want);
+    expect_same_axes(d.axes, make_axes());
+    ASSERT_EQ(d.records.size(), kShard.size());
+    for (std::size_t j = 0; j < kShard.size(); ++j)
+      expect_same_record(d.records[j], canonical(make_record(kShard[j]), static_cast<std::int64_t>(j)),
+                         "row " + std::to_string(j));
+    EXPECT_EQ(d.stats.groups(), 0);
+  });
+}
+
+TEST(ResultFile, ReadResultsRoundTrip) {
+  for (const bool bulk : {true, false}) {
+    const std::string p = scratch(bulk ? "roundtrip.h5" : "roundtrip_nolimit.h5");
+    RunMeta m = make_meta("round trip");
+    m.config_hash = "0123456789abcdef";
+    write_results(MPI_COMM_WORLD, p, false, make_axes(bulk), m, kP, my_records(Dist::UnevenReversed));
+    barrier();
+    on_rank0([&] {
+      const ResultData d = read_results(p);
+      EXPECT_EQ(d.rows, kP);
+      RunMeta want = m;
+      want.total_points = kP;  // the default
+      expect_same_meta(d.meta, want);
+      expect_same_axes(d.axes, make_axes(bulk));
+      ASSERT_EQ(d.records.size(), static_cast<std::size_t>(kP));
+      for (std::int64_t i = 0; i < kP; ++i) {
+        PointRecord r = make_record(i);
+        if (!bulk) {  // no /limit: the limit fields are not stored
+          r.limit_lambda_max = r.limit_ks_density = r.limit_accuracy = kNaN;
+          r.limit_hist_counts.clear();
+          r.limit_hist_edges.clear();
+        }
+        expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+      }
+      // the long message comes back truncated, the partly-NaN errors whole
+      EXPECT_EQ(d.records[kFailedLong].message.size(), 254u);
+      EXPECT_EQ(d.records[4].exponent_errors.size(), d.records[4].exponents.size());
+      EXPECT_TRUE(std::isnan(d.records[4].exponent_errors[0]));
+      EXPECT_TRUE(d.records[3].exponent_errors.empty());
+      EXPECT_EQ(d.records[kPending].status, static_cast<std::int32_t>(PointStatus::Pending));
+    });
+  }
+  // no points, empty axes
+  const std::string e = scratch("roundtrip_empty.h5");
+  RunAxes ax = make_axes();
+  ax.region_sizes.clear();
+  ax.hist_bins = 0;
+  write_results(MPI_COMM_WORLD, e, false, ax, make_meta(), 0, {});
+  barrier();
+  on_rank0([&] {
+    const ResultData d = read_results(e);
+    EXPECT_EQ(d.rows, 0);
+    EXPECT_TRUE(d.records.empty());
+    expect_same_axes(d.axes, ax);
+  });
+}
+
+TEST(ResultFile, RejectsBadRowsAndIndices) {
+  const std::string p = scratch("badrows.h5");
+  auto expect_refused = [&](const RunMeta& m, std::int64_t rows, const std::vector<PointRecord>& mine,
+                            const std::string& needle) {
+    try {
+      write_results(MPI_COMM_WORLD, p, false, make_axes(), m, rows, mine);
+      ADD_FAILURE() << "no exception for " << needle;
+    } catch (const OutputExistsError& e) {
+      ADD_FAILURE() << e.what();
+    } catch (const ResultFileError& e) {
+      EXPECT_NE(std::string(e.what()).find(needle), std::string::npos) << e.what();
+    }
+    barrier();
+    on_rank0([&] {
+      EXPECT_FALSE(output_exists(p));
+      EXPECT_TRUE(partial_files().empty());
+    });
+  };
+  const std::int64_t rows = static_cast<std::int64_t>(kShard.size());
+  // a whole-run file whose rows are not the indices
+  {
+    auto mine = my_records(Dist::Cyclic);
+    for (auto& r : mine) r.row = (r.index + 1) % kP;
+    expect_refused(make_meta(), kP, mine, "differs from the index");
+  }
+  // the same point in two rows of a shard (on different ranks when 2 ranks)
+  {
+    auto mine = my_shard_records();
+    for (auto& r : mine)
+      if (r.row == 1) r.index = kShard[0];
+    expect_refused(shard_meta(), rows, mine, "more than one row");
+  }
+  // total_points below the rows; a row out of range; a negative row; an
+  // index out of range of total_points
+  {
+    RunMeta m = make_meta();
+    m.total_points = 5;
+    expect_refused(m, kP, my_records(Dist::Cyclic), "smaller than");
+    auto mine = my_shard_records();
+    if (g_rank == 0) mine.front().row = rows;
+    expect_refused(shard_meta(), rows, mine, "outside");
+    mine = my_shard_records();
+    if (g_rank == 0) mine.front().row = -2;
+    expect_refused(shard_meta(), rows, mine, "negative");
+    mine = my_shard_records();
+    if (g_rank == 0) mine.front().index = kP;
+    expect_refused(shard_meta(), rows, mine, "index outside");
+  }
+  // a row left out of a shard
+  {
+    auto mine = my_shard_records();
+    mine.erase(std::remove_if(mine.begin(), mine.end(), [](const PointRecord& r) { return r.row == 2; }),
+               mine.end());
+    expect_refused(shard_meta(), rows, mine, "row 2");
+  }
+  // exponent_errors of the wrong length, on the last rank only
+  {
+    auto mine = my_records(Dist::Cyclic);
+    if (g_rank == g_size - 1) mine.back().exponent_errors.push_back(1.0);
+    expect_refused(make_meta(), kP, mine, "exponent_errors");
+  }
+}
+
+TEST(ResultFile, StatsGroup) {
+  const std::string p = scratch("stats.h5");
+  const EnsembleStats st = make_stats();
+  // only rank 0 passes the statistics
+  write_results(MPI_COMM_WORLD, p, false, make_axes(), make_meta(), kP, my_records(Dist::Cyclic),
+                g_rank == 0 ? &st : nullptr);
+  barrier();
+  on_rank0([&] {
+    {
+      RFile rf(p);
+      ASSERT_GE(rf.id, 0);
+      const hid_t f = rf.id;
+      const std::string meaning = attr_string(f, "/stats", "meaning");
+      EXPECT_NE(meaning.find("ddof = 1"), std::string::npos) << meaning;
+      EXPECT_NE(meaning.find("std / sqrt(count)"), std::string::npos) << meaning;
+      EXPECT_NE(meaning.find("count < 2"), std::string::npos) << meaning;
+      EXPECT_EQ(attr_strings(f, "/stats", "parameters"), st.param_names);
+      EXPECT_EQ(attr_strings(f, "/stats", "columns"),
+                (std::vector<std::string>{"lambda_max", "lyapunov_rate", "hilbert_cap", "ehrenfest_time"}));
+      EXPECT_EQ(read_raw<std::int64_t>(f, "/stats/sweep", H5T_NATIVE_INT64), (std::vector<std::int64_t>{0, 1, 0}));
+      EXPECT_EQ(read_raw<std::int64_t>(f, "/stats/sites", H5T_NATIVE_INT64), (std::vector<std::int64_t>{4, 6, 8}));
+      EXPECT_EQ(read_raw<std::int64_t>(f, "/stats/count", H5T_NATIVE_INT64), st.count);
+      EXPECT_TRUE(type_is(f, "/stats/count", H5T_STD_I64LE));
+      for (const auto& c : st.columns) {
+        const std::string base = "/stats/" + c.name;
+        EXPECT_EQ(attr_string(f, base, "units"), c.units);
+        EXPECT_EQ(attr_string(f, base, "meaning"), c.meaning);
+        std::vector<hsize_t> dims{3};
+        for (auto x : c.inner) dims.push_back(x);
+        const std::vector<std::pair<std::string, const std::vector<double>*>> parts = {
+            {"mean", &c.mean}, {"std", &c.std}, {"sem", &c.sem}, {"median", &c.median}};
+        for (const auto& [name, want] : parts) {
+          const std::string dp = base + "/" + name;
+          ASSERT_TRUE(link_exists(f, dp)) << dp;
+          EXPECT_EQ(shape_of(f, dp), dims) << dp;
+          EXPECT_TRUE(type_is(f, dp, H5T_IEEE_F64LE)) << dp;
+          EXPECT_EQ(attr_string(f, dp, "units"), c.units) << dp;
+          EXPECT_FALSE(attr_string(f, dp, "meaning").empty()) << dp;
+          const auto got = read_raw<double>(f, dp, H5T_NATIVE_DOUBLE);
+          ASSERT_EQ(got.size(), want->size()) << dp;
+          for (std::size_t k = 0; k < got.size(); ++k) EXPECT_EQ(bits(got[k]), bits((*want)[k])) << dp << " " << k;
+        }
+      }
+      // std and sem are NaN where count < 2
+      const auto sd = read_raw<double>(f, "/stats/lambda_max/std", H5T_NATIVE_DOUBLE);
+      EXPECT_FALSE(std::isnan(sd[0]));
+      EXPECT_TRUE(std::isnan(sd[1]));
+      EXPECT_TRUE(std::isnan(sd[2]));
+      EXPECT_DOUBLE_EQ(read_raw<double>(f, "/stats/lambda_max/sem", H5T_NATIVE_DOUBLE)[0], 0.5 / std::sqrt(3.0));
+    }
+    const ResultData d = read_results(p);
+    ASSERT_EQ(d.stats.groups(), 3);
+    EXPECT_EQ(d.stats.param_names, st.param_names);
+    EXPECT_EQ(d.stats.params, st.params);
+    EXPECT_EQ(d.stats.count, st.count);
+    ASSERT_EQ(d.stats.columns.size(), st.columns.size());
+    for (std::size_t i = 0; i < st.columns.size(); ++i) {
+      const auto &a = d.stats.columns[i], &b = st.columns[i];
+      EXPECT_EQ(a.name, b.name);
+      EXPECT_EQ(a.inner, b.inner);
+      EXPECT_EQ(a.units, b.units);
+      EXPECT_EQ(a.meaning, b.meaning);
+      for (const auto& [x, y] : {std::pair{&a.mean, &b.mean}, std::pair{&a.std, &b.std},
+                                 std::pair{&a.sem, &b.sem}, std::pair{&a.median, &b.median}}) {
+        ASSERT_EQ(x->size(), y->size()) << a.name;
+        for (std::size_t k = 0; k < x->size(); ++k) EXPECT_EQ(bits((*x)[k]), bits((*y)[k])) << a.name;
+      }
+    }
+  });
+  // same datasets whether the stats were passed by every rank or rank 0 only
+  const std::string q = scratch("stats_all_ranks.h5");
+  write_results(MPI_COMM_WORLD, q, false, make_axes(), make_meta(), kP, my_records(Dist::UnevenReversed), &st);
+  barrier();
+  on_rank0([&] {
+    const auto a = dataset_bytes(p), b = dataset_bytes(q);
+    EXPECT_EQ(a.size(), b.size());
+    for (const auto& [k, v] : a) EXPECT_TRUE(b.count(k) && b.at(k) == v) << k;
+  });
+  // stats without groups: no /stats
+  const std::string e = scratch("stats_empty.h5");
+  EnsembleStats none;
+  write_results(MPI_COMM_WORLD, e, false, make_axes(), make_meta(), kP, my_records(Dist::Cyclic), &none);
+  barrier();
+  on_rank0([&] {
+    RFile rf(e);
+    EXPECT_FALSE(link_exists(rf.id, "/stats"));
+  });
+  // invalid stats are refused on every rank before anything is written
+  auto expect_refused = [&](const EnsembleStats& bad, const std::string& needle) {
+    const std::string r = scratch("stats_bad.h5");
+    try {
+      write_results(MPI_COMM_WORLD, r, false, make_axes(), make_meta(), kP, my_records(Dist::Cyclic),
+                    g_rank == 0 ? &bad : nullptr);
+      ADD_FAILURE() << "no exception for " << needle;
+    } catch (const ResultFileError& ex) {
+      EXPECT_NE(std::string(ex.what()).find(needle), std::string::npos) << ex.what();
+    }
+    barrier();
+    on_rank0([&] { EXPECT_FALSE(output_exists(r)); });
+  };
+  {
+    EnsembleStats bad = st;
+    bad.columns[1].name = "count";
+    expect_refused(bad, "used twice");
+    bad = st;
+    bad.columns[2].median.pop_back();
+    expect_refused(bad, "median");
+    bad = st;
+    bad.params.pop_back();
+    expect_refused(bad, "parameter values");
+    bad = st;
+    bad.columns[0].name = "a/b";
+    expect_refused(bad, "invalid name");
+  }
+}
+
+// A layout-1 file from before the additions (no /points/index, no
+// exponent_error, no /chaos/solver, no config_hash / total_points / shard)
+// still reads, with the documented defaults.
+TEST(ResultFile, ReadResultsOfOlderLayout1File) {
+  const std::string p = scratch("older.h5");
+  write_results(MPI_COMM_WORLD, p, false, make_axes(), make_meta(), kP, my_records(Dist::Cyclic));
+  barrier();
+  on_rank0([&] {
+    {
+      EditFile f(p);
+      ASSERT_GE(f.id, 0);
+      for (const char* l : {"/points/index", "/chaos/exponent_error", "/chaos/solver"})
+        ASSERT_GE(H5Ldelete(f.id, l, H5P_DEFAULT), 0) << l;
+      for (const char* a : {"config_hash", "total_points", "shard"}) ASSERT_GE(H5Adelete(f.id, a), 0) << a;
+    }
+    const ResultData d = read_results(p);
+    EXPECT_EQ(d.meta.config_hash, "");
+    EXPECT_EQ(d.meta.total_points, kP);
+    EXPECT_EQ(d.meta.shard, "");
+    ASSERT_EQ(d.records.size(), static_cast<std::size_t>(kP));
+    const PointRecord defaults;
+    for (std::int64_t i = 0; i < kP; ++i) {
+      PointRecord r = make_record(i);
+      r.exponent_errors.clear();
+      r.solver = defaults.solver;
+      r.solver_converged = defaults.solver_converged;
+      r.solver_iterations = defaults.solver_iterations;
+      r.solver_residual = defaults.solver_residual;
+      r.solver_time = defaults.solver_time;
+      r.solver_ranks = defaults.solver_ranks;
+      r.cluster_count = defaults.cluster_count;
+      r.cluster_spread = defaults.cluster_spread;
+      expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+    }
+  });
+}
+
+TEST(ResultFile, ReadResultsErrors) {
+  const std::string good = scratch("good.h5");
+  write_results(MPI_COMM_WORLD, good, false, make_axes(), make_meta(), kP, my_records(Dist::Cyclic));
+  barrier();
+  on_rank0([&] {
+    ASSERT_NO_THROW(read_results(good));
+    // no file
+    expect_read_error(scratch("no_such.h5"), "no such file");
+    // not HDF5 at all
+    const std::string text = scratch("text.h5");
+    {
+      std::ofstream o(text);
+      o << "time,lambda\n0,1.5\n";
+    }
+    expect_read_error(text, "not an HDF5 file");
+    // HDF5, but not toral's
+    const std::string other = scratch("other.h5");
+    {
+      const hid_t f = H5Fcreate(other.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, H5P_DEFAULT);
+      ASSERT_GE(f, 0);
+      const hsize_t n = 4;
+      const hid_t sp = H5Screate_simple(1, &n, nullptr);
+      const hid_t d = H5Dcreate2(f, "temperature", H5T_IEEE_F64LE, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+      const double v[4] = {1, 2, 3, 4};
+      H5Dwrite(d, H5T_NATIVE_DOUBLE, H5S_ALL, H5S_ALL, H5P_DEFAULT, v);
+      H5Dclose(d);
+      H5Sclose(sp);
+      H5Fclose(f);
+    }
+    expect_read_error(other, "not a toral result file");
+    // the first half of a real file
+    const std::string half = scratch("half.h5");
+    {
+      const std::string bytes = slurp(good);
+      ASSERT_GT(bytes.size(), 4096u);
+      std::ofstream o(half, std::ios::binary);
+      o.write(bytes.data(), static_cast<std::streamsize>(bytes.size() / 2));
+    }
+    expect_read_error(half, "corrupt");
+    // an unsupported layout version
+    const std::string v2 = scratch("v2.h5");
+    fs::copy_file(good, v2);
+    {
+      EditFile f(v2);
+      ASSERT_GE(f.id, 0);
+      const hid_t a = H5Aopen(f.id, "layout_version", H5P_DEFAULT);
+      const std::int64_t two = 2;
+      ASSERT_GE(H5Awrite(a, H5T_NATIVE_INT64, &two), 0);
+      H5Aclose(a);
+    }
+    expect_read_error(v2, "unsupported layout version 2");
+    // a required dataset missing
+    const std::string miss = scratch("missing_dataset.h5");
+    fs::copy_file(good, miss);
+    {
+      EditFile f(miss);
+      ASSERT_GE(H5Ldelete(f.id, "/chaos/exponents", H5P_DEFAULT), 0);
+    }
+    expect_read_error(miss, "missing dataset /chaos/exponents");
+    // a dataset of the wrong length
+    const std::string shape = scratch("bad_shape.h5");
+    fs::copy_file(good, shape);
+    {
+      EditFile f(shape);
+      ASSERT_GE(H5Ldelete(f.id, "/chaos/ks_rate", H5P_DEFAULT), 0);
+      const hsize_t n = kP - 1;
+      const hid_t sp = H5Screate_simple(1, &n, nullptr);
+      const hid_t d = H5Dcreate2(f.id, "/chaos/ks_rate", H5T_IEEE_F64LE, sp, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+      H5Dclose(d);
+      H5Sclose(sp);
+    }
+    expect_read_error(shape, "/chaos/ks_rate has shape (10,)");
+    // a directory
+    expect_read_error(g_dir, "directory");
   });
 }
 
