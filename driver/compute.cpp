@@ -3,8 +3,12 @@
 #include <chrono>
 #include <cmath>
 
+#include <algorithm>
+
 #include "bloch.hpp"
 #include "bounds.hpp"
+#include "krylov.hpp"
+#include "tangent.hpp"
 
 namespace toral {
 
@@ -20,24 +24,30 @@ std::int64_t dense_dim(const SweepSpec& s, std::int64_t L) {
 }
 }  // namespace
 
-Method choose_method(const Config& c, const Circuit& circ, std::string& why) {
+Method planned_method(const Config& c, const Point& p) {
+  const SweepSpec& s = c.sweeps[static_cast<std::size_t>(p.sweep)];
   const std::string& m = c.spectrum.method;
-  const bool ti = circ.translation_invariant() && circ.boundary == Boundary::Periodic;
-  const std::int64_t dim = circ.position_class() ? circ.L : 2 * circ.L;
-  if (m == "bloch" || (m == "auto" && ti)) {
-    if (!ti) {
-      why = "bloch needs a translation-invariant periodic circuit";
-      return Method::None;
-    }
-    return Method::Bloch;
+  const bool ti = translation_invariant_spec(s) && p.boundary == Boundary::Periodic;
+  if (m == "bloch") return Method::Bloch;
+  if (m == "dense") return Method::Dense;
+  if (m == "krylov") return Method::Krylov;
+  if (m == "tangent") return Method::Tangent;
+  if (s.redrawn) return Method::Tangent;
+  if (ti) return Method::Bloch;
+  if (dense_dim(s, p.L) <= c.spectrum.dense_max) return Method::Dense;
+  return Method::Krylov;
+}
+
+int ranks_per_point(const Config& c, const std::vector<Point>& points, int world) {
+  std::int64_t want = c.spectrum.krylov.ranks_per_point;
+  if (want <= 0) {
+    std::int64_t dim = 0;
+    for (const auto& p : points)
+      if (distributed_method(planned_method(c, p)))
+        dim = std::max(dim, dense_dim(c.sweeps[static_cast<std::size_t>(p.sweep)], p.L));
+    want = std::max<std::int64_t>(1, (dim + 249999) / 250000);
   }
-  if (dim > c.spectrum.dense_max) {
-    why = "matrix dimension " + std::to_string(dim) + " exceeds spectrum.dense_max = " +
-          std::to_string(c.spectrum.dense_max) +
-          (ti ? "" : ", and the circuit is not translation-invariant and periodic (bloch)");
-    return Method::None;
-  }
-  return Method::Dense;
+  return static_cast<int>(std::clamp<std::int64_t>(want, 1, world));
 }
 
 int region_cuts(const Config& c, const Point& p) {
@@ -47,14 +57,43 @@ int region_cuts(const Config& c, const Point& p) {
 
 double estimated_flops(const Config& c, const Point& p) {
   const SweepSpec& s = c.sweeps[static_cast<std::size_t>(p.sweep)];
-  const bool ti = translation_invariant_spec(s) && p.boundary == Boundary::Periodic;
-  if ((c.spectrum.method == "auto" && ti) || c.spectrum.method == "bloch")
-    return 2000.0 * static_cast<double>(p.L) + (c.spectrum.bulk_limit ? 5e6 : 0.0);
   const double n = static_cast<double>(dense_dim(s, p.L));
-  return 30.0 * n * n * n;  // dgeevx with eigenvectors and condition numbers
+  switch (planned_method(c, p)) {
+    case Method::Bloch:
+      return 2000.0 * static_cast<double>(p.L) + (c.spectrum.bulk_limit ? 5e6 : 0.0);
+    case Method::Krylov:  // a few hundred sparse products and orthogonalisations
+      return 4000.0 * n * static_cast<double>(c.spectrum.krylov.count);
+    case Method::Tangent:
+      return 20.0 * n * static_cast<double>(c.spectrum.tangent.count * c.spectrum.tangent.count) *
+             static_cast<double>(c.spectrum.tangent.periods + c.spectrum.tangent.transient);
+    default:
+      return 30.0 * n * n * n;  // dgeevx with eigenvectors and condition numbers
+  }
 }
 
-PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) {
+namespace {
+
+// Bounds from whatever top of the spectrum is known.
+void fill_bounds(PointRecord& r, const Config& c, std::int64_t L, const std::vector<double>& top, double lambda_max,
+                 double ks_rate) {
+  BoundsInput bi;
+  bi.L = L;
+  bi.top = top;
+  bi.lambda_max = lambda_max;
+  bi.ks_rate = ks_rate;
+  bi.cuts = static_cast<int>(r.cuts);
+  const Bounds b = entanglement_bounds(bi, c.bounds.regions, c.bounds.local_dims);
+  r.lyapunov_rate = b.lyapunov_rate;
+  r.hilbert_cap = b.hilbert_cap;
+  r.lightcone_rate = b.lightcone_rate;
+  r.ehrenfest_time = b.ehrenfest_time;
+  r.saturation_lyapunov = b.saturation_lyapunov;
+  r.saturation_lightcone = b.saturation_lightcone;
+}
+
+}  // namespace
+
+PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group) {
   const auto t0 = std::chrono::steady_clock::now();
   PointRecord r;
   r.index = p.index;
@@ -66,16 +105,76 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
   };
   try {
     const GateSource gs = gate_source(c, p);
+    const Method m = planned_method(c, p);
+    r.method = static_cast<std::int32_t>(m);
+    int group_size = 1;
+    MPI_Comm_size(group, &group_size);
+    r.solver_ranks = group_size;
+    if (distributed_method(m)) {
+      // Large lattices: gates on demand, never a full Circuit on one rank.
+      const SpectrumSpec& S = c.spectrum;
+      std::vector<double> top, err;
+      if (m == Method::Krylov) {
+        KrylovOptions ko;
+        ko.nev = static_cast<int>(S.krylov.count);
+        ko.tol = S.krylov.tolerance;
+        ko.max_it = static_cast<int>(S.krylov.max_restarts);
+        ko.policy = S.krylov.policy;
+        ko.cluster_tol = S.krylov.cluster_tolerance;
+        const KrylovResult kr = krylov_top(group, gs, ko);
+        r.solver = static_cast<std::int32_t>(kr.method == "shift-invert" ? SolverCode::ShiftInvert
+                                                                         : SolverCode::KrylovSchur);
+        r.solver_converged = kr.converged;
+        r.solver_iterations = kr.iterations;
+        r.solver_residual = kr.max_residual;
+        r.solver_time = kr.wall_seconds;
+        r.cluster_count = kr.cluster_count;
+        r.cluster_spread = kr.cluster_spread;
+        if (!kr.ok) throw std::runtime_error("krylov: " + kr.message);
+        top = kr.exponents;
+        err = kr.residuals;  // first order: a relative residual r moves ln|mu| by about r
+      } else {
+        TangentOptions to;
+        to.k = static_cast<int>(S.tangent.count);
+        to.periods = S.tangent.periods;
+        to.transient = S.tangent.transient;
+        to.windows = static_cast<int>(S.tangent.windows);
+        to.seed = p.seed >= 0 ? static_cast<std::uint64_t>(p.seed) : 0;
+        const TangentResult tr = tangent_top(group, gs, to);
+        r.solver = static_cast<std::int32_t>(SolverCode::Tangent);
+        r.solver_converged = static_cast<std::int64_t>(tr.exponents.size());
+        r.solver_iterations = tr.periods;
+        r.solver_time = tr.wall_seconds;
+        if (!tr.ok) throw std::runtime_error("tangent: " + tr.message);
+        top = tr.exponents;
+        err = tr.errors;
+      }
+      r.lambda_max = top.empty() ? kNaN : top.front();
+      r.exponents = top;
+      r.exponent_errors = err;
+      r.error_bound = 0.0;
+      for (double e : err) r.error_bound = std::max(r.error_bound, e);
+      // Only the top is known: no KS rate, no histogram (docs/model.md).
+      fill_bounds(r, c, p.L, top, r.lambda_max, kNaN);
+    } else {
     const Circuit circ = materialize(gs);
     circ.validate();
     std::string why;
-    Method m = choose_method(c, circ, why);
-    if (!gs.time_periodic) {
-      m = Method::None;
-      why = "gates redrawn every period have no one-period spectrum; a tangent-space method is needed";
+    Method use = m;
+    const std::int64_t dim = circ.position_class() ? circ.L : 2 * circ.L;
+    if (m == Method::Bloch && !(circ.translation_invariant() && circ.boundary == Boundary::Periodic)) {
+      use = Method::None;
+      why = "bloch needs a translation-invariant periodic circuit";
+    } else if (m == Method::Dense && dim > c.spectrum.dense_max) {
+      use = Method::None;
+      why = "matrix dimension " + std::to_string(dim) + " exceeds spectrum.dense_max = " +
+            std::to_string(c.spectrum.dense_max);
+    } else if (!gs.time_periodic) {
+      use = Method::None;
+      why = "gates redrawn every period have no one-period spectrum; use the tangent method";
     }
-    r.method = static_cast<std::int32_t>(m);
-    if (m == Method::None) {
+    if (use == Method::None) {
+      r.method = 0;
       fail(PointStatus::NoMethod, "no spectrum method: " + why);
     } else {
       const auto ts = std::chrono::steady_clock::now();
@@ -107,19 +206,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
       r.error_bound = sp.error_bound;
       r.hist_counts = cs.hist_counts;
       r.hist_edges = cs.hist_edges;
-      BoundsInput bi;
-      bi.L = circ.L;
-      bi.top = sp.exponents;
-      bi.lambda_max = cs.lambda_max;
-      bi.ks_rate = cs.ks_rate;
-      bi.cuts = r.cuts;
-      const Bounds b = entanglement_bounds(bi, c.bounds.regions, c.bounds.local_dims);
-      r.lyapunov_rate = b.lyapunov_rate;
-      r.hilbert_cap = b.hilbert_cap;
-      r.lightcone_rate = b.lightcone_rate;
-      r.ehrenfest_time = b.ehrenfest_time;
-      r.saturation_lyapunov = b.saturation_lyapunov;
-      r.saturation_lightcone = b.saturation_lightcone;
+      fill_bounds(r, c, circ.L, sp.exponents, cs.lambda_max, cs.ks_rate);
     }
     if (c.spectrum.bulk_limit && circ.translation_invariant()) {
       const BulkLimit bl = bulk_limit(circ, c.spectrum.summary.bins);
@@ -129,6 +216,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
       r.limit_hist_counts = bl.hist_counts;
       r.limit_hist_edges = bl.hist_edges;
     }
+    }
   } catch (const OverflowError& e) {
     fail(PointStatus::Overflow, e.what());
   } catch (const ModelError& e) {
@@ -136,6 +224,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p) 
   } catch (const std::exception& e) {
     fail(PointStatus::SolverFailed, std::string("solver: ") + e.what());
   }
+  compute_entanglement(c, p, r);  // exact entanglement dynamics: driver/entangle.cpp
   r.wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return r;
 }

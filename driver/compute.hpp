@@ -2,6 +2,10 @@
 // record. Runs on one rank; never throws for a point's own failures (they
 // become a status and a message in the record).
 #pragma once
+#include <mpi.h>
+
+#include <vector>
+
 #include "config.hpp"
 #include "record.hpp"
 #include "spectrum.hpp"
@@ -9,14 +13,25 @@
 
 namespace toral {
 
-// The method `auto` (or the config override) picks for a point, or
-// Method::None with the reason in `why`.
-Method choose_method(const Config& c, const Circuit& circ, std::string& why);
+// The method a point will use, decided from the config alone (the same on
+// every rank, before any circuit is built): the override, or for `auto`
+// tangent for gates redrawn in time, bloch for clean periodic rings, dense up
+// to spectrum.dense_max, krylov beyond.
+Method planned_method(const Config& c, const Point& p);
+
+// Methods that run collectively on a group of ranks.
+inline bool distributed_method(Method m) { return m == Method::Krylov || m == Method::Tangent; }
+
+// Ranks per distributed point: spectrum.krylov.ranks_per_point, or
+// automatically about one rank per 250 000 matrix rows; at most `world`.
+int ranks_per_point(const Config& c, const std::vector<Point>& points, int world);
 
 // Number of cuts the bound regions have at a point (see docs/bounds).
 int region_cuts(const Config& c, const Point& p);
 
-PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p);
+// `group` is the communicator of a distributed point (MPI_COMM_SELF for the
+// others); every rank of it must call with the same point.
+PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group = MPI_COMM_SELF);
 
 // A rough cost model (floating-point operations) used by `check`.
 double estimated_flops(const Config& c, const Point& p);

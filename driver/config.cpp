@@ -230,6 +230,7 @@ SweepSpec read_sweep(const Ctx& cx, const toml::table& t, std::size_t index) {
   if (!t.get("sites")) cx.fail(line, s.where, "missing 'sites' (the lattice sizes L)");
   const toml::node& sites = *t.get("sites");
   s.sites = cx.int_values(sites, s.where + ".sites");
+  s.sites_line = static_cast<std::int64_t>(sites.source().begin.line);
   if (const toml::node* b = t.get("boundary")) {
     std::vector<std::string> names;
     if (b->is_array()) {
@@ -290,7 +291,7 @@ Config parse_config(const std::string& text, const std::string& source) {
     cx.fail(static_cast<std::int64_t>(e.source().begin.line), "", std::string("TOML syntax: ") +
                                                                       std::string(e.description()));
   }
-  cx.only_keys(root, "", {"title", "sweep", "spectrum", "bounds"});
+  cx.only_keys(root, "", {"title", "sweep", "spectrum", "bounds", "entanglement"});
   if (const toml::node* t = root.get("title")) c.title = cx.string(*t, "title");
 
   const toml::node* sw = root.get("sweep");
@@ -307,10 +308,10 @@ Config parse_config(const std::string& text, const std::string& source) {
 
   if (const toml::node* sp = root.get("spectrum")) {
     const auto& t = cx.table(*sp, "spectrum");
-    cx.only_keys(t, "spectrum", {"method", "dense_max", "keep_all", "top", "bins", "bulk_limit"});
+    cx.only_keys(t, "spectrum", {"method", "dense_max", "keep_all", "top", "bins", "bulk_limit", "krylov", "tangent"});
     auto& S = c.spectrum;
     if (const toml::node* m = t.get("method")) {
-      S.method = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense"});
+      S.method = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense", "krylov", "tangent"});
       S.method_line = static_cast<std::int64_t>(m->source().begin.line);
     }
     auto positive = [&](const char* key, std::int64_t& out) {
@@ -327,10 +328,68 @@ Config parse_config(const std::string& text, const std::string& source) {
     if (bins > 100000) cx.fail(*t.get("bins"), "spectrum.bins", "at most 100000 bins");
     S.summary.bins = static_cast<int>(bins);
     if (const toml::node* b = t.get("bulk_limit")) S.bulk_limit = cx.boolean(*b, "spectrum.bulk_limit");
+    auto count_key = [&](const toml::table& sub, const std::string& where, const char* key, std::int64_t& out,
+                         std::int64_t lo, std::int64_t hi) {
+      if (const toml::node* n = sub.get(key)) {
+        out = cx.integer(*n, where + "." + key);
+        if (out < lo || out > hi)
+          cx.fail(*n, where + "." + key, "must be in " + std::to_string(lo) + ".." + std::to_string(hi));
+      }
+    };
+    auto real_key = [&](const toml::table& sub, const std::string& where, const char* key, double& out, double lo,
+                        double hi) {
+      if (const toml::node* n = sub.get(key)) {
+        if (!n->is_number()) cx.fail(*n, where + "." + key, "must be a number");
+        out = n->is_integer() ? static_cast<double>(n->as_integer()->get()) : n->as_floating_point()->get();
+        if (!(out > lo && out < hi)) cx.fail(*n, where + "." + key, "must be in (" + std::to_string(lo) + ", " +
+                                                                      std::to_string(hi) + ")");
+      }
+    };
+    if (const toml::node* k = t.get("krylov")) {
+      const auto& kt = cx.table(*k, "spectrum.krylov");
+      cx.only_keys(kt, "spectrum.krylov",
+                   {"count", "tolerance", "max_restarts", "policy", "cluster_tolerance", "ranks_per_point"});
+      auto& K = S.krylov;
+      count_key(kt, "spectrum.krylov", "count", K.count, 1, 10000);
+      real_key(kt, "spectrum.krylov", "tolerance", K.tolerance, 0.0, 1e-2);
+      count_key(kt, "spectrum.krylov", "max_restarts", K.max_restarts, 1, 1000000);
+      real_key(kt, "spectrum.krylov", "cluster_tolerance", K.cluster_tolerance, 0.0, 1.0);
+      if (const toml::node* p = kt.get("policy"))
+        K.policy = cx.choice(*p, "spectrum.krylov.policy", {"auto", "largest", "shift_invert"});
+      if (const toml::node* r = kt.get("ranks_per_point")) {
+        if (r->is_string()) {
+          cx.choice(*r, "spectrum.krylov.ranks_per_point", {"auto"});
+          K.ranks_per_point = 0;
+        } else {
+          count_key(kt, "spectrum.krylov", "ranks_per_point", K.ranks_per_point, 1, 1 << 20);
+        }
+      }
+    }
+    if (const toml::node* k = t.get("tangent")) {
+      const auto& tt = cx.table(*k, "spectrum.tangent");
+      cx.only_keys(tt, "spectrum.tangent", {"count", "periods", "transient", "windows"});
+      auto& T = S.tangent;
+      count_key(tt, "spectrum.tangent", "count", T.count, 1, 10000);
+      count_key(tt, "spectrum.tangent", "periods", T.periods, 2, 1000000000);
+      count_key(tt, "spectrum.tangent", "transient", T.transient, 0, 1000000000);
+      count_key(tt, "spectrum.tangent", "windows", T.windows, 2, 100000);
+      if (T.windows > T.periods)
+        cx.fail(tt.get("windows") ? *tt.get("windows") : *k, "spectrum.tangent.windows", "more windows than periods");
+    }
   }
   // A forced method must apply to every point.
   for (const auto& s : c.sweeps) {
     const bool ti = !s.bond.drawn() && !s.site.drawn();
+    if (c.spectrum.method == "krylov" && s.redrawn)
+      cx.fail(c.spectrum.method_line, "spectrum.method",
+              "\"krylov\" needs gates that repeat every period, but " + s.where + " redraws them (use \"tangent\")");
+    // PETSc from Debian has 32-bit indices: the distributed matrix dimension
+    // (L for position-class circuits, 2L otherwise) must stay below 2^31.
+    const bool pos = !s.bond.symplectic && !s.site.present;
+    for (std::int64_t L : s.sites)
+      if ((pos ? L : 2 * L) >= (std::int64_t(1) << 31))
+        cx.fail(s.sites_line, s.where + ".sites",
+                "L = " + std::to_string(L) + " gives a matrix dimension beyond 2^31 - 1, the limit of a 32-bit-index PETSc");
     if (c.spectrum.method == "bloch") {
       if (!ti)
         cx.fail(c.spectrum.method_line, "spectrum.method",
@@ -358,6 +417,7 @@ Config parse_config(const std::string& text, const std::string& source) {
     }
     if (const toml::node* p = t.get("placement")) B.placement = cx.choice(*p, "bounds.placement", {"bulk", "edge"});
   }
+  c.entanglement = parse_entanglement(text, source, c);  // [entanglement]: driver/entangle.cpp
   return c;
 }
 

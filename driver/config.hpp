@@ -10,6 +10,7 @@
 #include "intmat.hpp"
 #include "model.hpp"
 #include "spectrum.hpp"
+#include "entangle.hpp"
 
 namespace toral {
 
@@ -43,6 +44,7 @@ struct GateSpec {
 struct SweepSpec {
   std::string name;
   std::vector<std::int64_t> sites;
+  std::int64_t sites_line = 0;
   std::vector<Boundary> boundaries;
   GateSpec bond;
   GateSpec site;  // present == false: no one-site layer
@@ -51,8 +53,28 @@ struct SweepSpec {
   std::string where;
 };
 
+// The distributed eigen-solver (SLEPc) for large time-periodic lattices.
+struct KrylovSpec {
+  std::int64_t count = 16;          // top exponents wanted
+  double tolerance = 1e-12;         // relative residual
+  std::int64_t max_restarts = 100;
+  std::string policy = "auto";      // auto | largest | shift_invert
+  double cluster_tolerance = 1e-6;  // exponent distance from lambda_max counted as one cluster
+  std::int64_t ranks_per_point = 0;  // 0: automatic from the matrix dimension
+};
+
+// The QR (Benettin) method over T periods, also for gates redrawn in time.
+struct TangentSpec {
+  std::int64_t count = 8;
+  std::int64_t periods = 2000;
+  std::int64_t transient = 200;
+  std::int64_t windows = 20;
+};
+
 struct SpectrumSpec {
-  std::string method = "auto";  // auto | bloch | dense
+  std::string method = "auto";  // auto | bloch | dense | krylov | tangent
+  KrylovSpec krylov;
+  TangentSpec tangent;
   std::int64_t dense_max = 4096;  // largest matrix dimension for dense
   SummaryOptions summary;
   bool bulk_limit = true;
@@ -72,6 +94,7 @@ struct Config {
   std::vector<SweepSpec> sweeps;
   SpectrumSpec spectrum;
   BoundsSpec bounds;
+  EntanglementSpec entanglement;  // [entanglement] (driver/entangle.hpp)
 };
 
 // Parses and validates; throws ConfigError with a one-line located message.

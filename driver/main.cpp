@@ -1,6 +1,8 @@
 // toral: command-line entry point. Subcommands: run, check, point.
 #include <mpi.h>
 
+#include <slepcsys.h>
+
 #include <CLI/CLI.hpp>
 #include <cstdio>
 #include <fstream>
@@ -85,13 +87,35 @@ std::pair<std::int64_t, std::int64_t> parse_shard(const std::string& s) {
 
 int main(int argc, char** argv) {
   int provided = 0;
-  MPI_Init_thread(&argc, &argv, MPI_THREAD_FUNNELED, &provided);
+  // Distributed points run their collectives in a compute thread while the
+  // main thread serves the task farm: MPI_THREAD_MULTIPLE.
+  MPI_Init_thread(&argc, &argv, MPI_THREAD_MULTIPLE, &provided);
+  // Everything after "--" goes to PETSc/SLEPc's options database
+  // (-eps_*, -st_*, -toral_*, -log_view ...); the rest to toral's own parser.
+  int cli_argc = argc;
+  std::vector<char*> petsc_argv = {argv[0]};
+  for (int i = 1; i < argc; ++i)
+    if (std::string(argv[i]) == "--") {
+      cli_argc = i;
+      for (int j = i + 1; j < argc; ++j) petsc_argv.push_back(argv[j]);
+      break;
+    }
+  int petsc_argc = static_cast<int>(petsc_argv.size());
+  petsc_argv.push_back(nullptr);
+  char** petsc_args = petsc_argv.data();
+  if (SlepcInitialize(&petsc_argc, &petsc_args, nullptr, nullptr) != 0) {
+    std::fprintf(stderr, "toral: error: PETSc/SLEPc initialisation failed\n");
+    MPI_Finalize();
+    return 1;
+  }
+  argc = cli_argc;
   if (openblas_set_num_threads) openblas_set_num_threads(1);  // one BLAS thread per rank
   int rank = 0;
   MPI_Comm_rank(MPI_COMM_WORLD, &rank);
   const MPI_Comm comm = MPI_COMM_WORLD;
 
-  CLI::App app{"toral: Lyapunov spectra and entanglement-growth bounds of integer symplectic lattice maps"};
+  CLI::App app{"toral: Lyapunov spectra and entanglement-growth bounds of integer symplectic lattice maps\n"
+               "PETSc/SLEPc options (e.g. -toral_eps_monitor, -log_view) go after `--`."};
   app.set_version_flag("--version", std::string("toral ") + TORAL_VERSION);
   app.require_subcommand(1);
 
@@ -150,6 +174,7 @@ int main(int argc, char** argv) {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
     const int c = rank == 0 ? app.exit(e) : e.get_exit_code();
+    SlepcFinalize();
     MPI_Finalize();
     return c == 0 ? kExitOk : kExitBadInput;
   }
@@ -215,6 +240,7 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "toral: error (rank %d): %s\n", rank, e.what());
     code = kExitFailure;
   }
+  SlepcFinalize();
   MPI_Finalize();
   return code;
 }

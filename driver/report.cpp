@@ -161,7 +161,9 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
        << ",\n  \"/bounds/lightcone_rate\": " << json_array(r.lightcone_rate)
        << ",\n  \"/bounds/ehrenfest_time\": " << json_array(r.ehrenfest_time)
        << ",\n  \"/bounds/saturation_lyapunov\": " << json_array(r.saturation_lyapunov)
-       << ",\n  \"/bounds/saturation_lightcone\": " << json_array(r.saturation_lightcone) << "\n}\n";
+       << ",\n  \"/bounds/saturation_lightcone\": " << json_array(r.saturation_lightcone);
+    print_entanglement(os, c, r, true);  // /entanglement/...: driver/entangle.cpp
+    os << "\n}\n";
     return;
   }
   os << "point " << p.index << " of sweep \"" << s.name << "\": " << point_identity(c, p);
@@ -169,6 +171,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   os << "\n";
   if (r.status != 0) {
     os << "  FAILED (status " << r.status << "): " << r.message << "\n";
+    print_entanglement(os, c, r, false);
     return;
   }
   os << "  method              " << method_name(static_cast<Method>(r.method)) << " (" << num(r.wall_time, 3)
@@ -198,6 +201,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   for (std::size_t j = 0; j < nn; ++j)
     os << "    " << std::setw(6) << c.bounds.local_dims[j] << std::setw(14) << num(r.lightcone_rate[j], 6)
        << std::setw(14) << num(r.ehrenfest_time[j], 6) << "\n";
+  print_entanglement(os, c, r, false);  // driver/entangle.cpp
 }
 
 namespace {
@@ -257,24 +261,33 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   };
   // (sweep, L, method) -> cost class
   std::map<std::tuple<int, std::int64_t, std::string>, Class> classes;
+  const int group = ranks_per_point(c, points, 1 << 20);
   for (const auto& p : points) {
-    const GateSource g = gate_source(c, p);
-    const Circuit circ = materialize(g);
-    std::string why;
-    Method m = choose_method(c, circ, why);
-    if (!g.time_periodic) m = Method::None;
-    const std::string name = m == Method::None ? "unsolvable" : method_name(m);
+    const Method m = planned_method(c, p);
+    const SweepSpec& sw = c.sweeps[static_cast<std::size_t>(p.sweep)];
+    const bool pos = !sw.bond.symplectic && !sw.site.present;
+    bool ok = true;
+    if (m == Method::Dense) ok = (pos ? p.L : 2 * p.L) <= c.spectrum.dense_max;
+    if (m == Method::Bloch) ok = !sw.bond.drawn() && !sw.site.drawn() && p.boundary == Boundary::Periodic;
+    if (sw.redrawn && m != Method::Tangent) ok = false;
+    const std::string name = !ok ? "unsolvable" : method_name(m);
     Class& k = classes[{p.sweep, p.L, name}];
     ++k.count;
     const double L = static_cast<double>(p.L);
-    const double dim = circ.position_class() ? L : 2 * L;
+    const double dim = pos ? L : 2 * L;
     const double gates = 400.0 * L;  // gates, exponents and sort buffers
+    k.flops = estimated_flops(c, p);
     if (m == Method::Dense) {
-      k.flops = 30.0 * dim * dim * dim;
       k.seconds = k.flops / probe.dense_flops_per_s;
       k.bytes = 4 * 8.0 * dim * dim + gates;  // A, left and right vectors, work
+    } else if (distributed_method(m)) {
+      // per rank of a group: the Krylov basis (2K + 15 vectors) or the k
+      // tangent vectors, the sparse operator and a banded LU of bandwidth ~8
+      const double vecs = m == Method::Krylov ? 2.0 * static_cast<double>(c.spectrum.krylov.count) + 15
+                                              : 2.0 * static_cast<double>(c.spectrum.tangent.count) + 4;
+      k.bytes = dim * (8.0 * vecs + 8 * 24 + 8 * 40) / group;
+      k.seconds = k.flops / probe.dense_flops_per_s / group;
     } else {
-      k.flops = estimated_flops(c, p);
       k.seconds = L * probe.bloch_s_per_site + probe.bulk_s;
       k.bytes = gates;
     }
@@ -305,6 +318,12 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
                     std::to_string(L) + " (" + name + ")";
     }
   }
+  if (std::any_of(classes.begin(), classes.end(), [](const auto& kv) {
+        const auto& n = std::get<2>(kv.first);
+        return n == "krylov" || n == "tangent";
+      }))
+    os << "  distributed points run on groups of " << group << " rank" << (group == 1 ? "" : "s")
+       << " (spectrum.krylov.ranks_per_point; memory above is per rank of a group)\n";
   os << "  total: about " << num(total_s, 3) << " core-seconds (" << num(total_s / 3600, 3) << " core-hours), "
      << num(total_flops / 1e9, 3) << " Gflop; largest point " << bytes_str(worst) << " of " << num(memory_gb, 3)
      << " GiB per rank\n";

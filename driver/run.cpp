@@ -46,6 +46,20 @@ double since(Clock::time_point t0) { return std::chrono::duration<double>(Clock:
 constexpr int kTagRequest = 11;  // worker -> 0: first request for work (empty)
 constexpr int kTagRecord = 12;   // worker -> 0: a finished record (also asks for more)
 constexpr int kTagWork = 13;     // 0 -> worker: a point index, or -1 to stop
+// The same for rank groups (distributed points), spoken by group leaders.
+constexpr int kTagGroupRequest = 21, kTagGroupRecord = 22, kTagGroupWork = 23;
+
+// Waits for a non-blocking operation while watching for stop signals.
+void wait_watching(MPI_Request& req, void (*on_stop)()) {
+  int done = 0;
+  while (!done) {
+    MPI_Test(&req, &done, MPI_STATUS_IGNORE);
+    if (!done) {
+      if (stop_requested()) on_stop();
+      std::this_thread::sleep_for(std::chrono::milliseconds(1));
+    }
+  }
+}
 
 std::string fmt_seconds(double s) {
   char buf[32];
@@ -113,6 +127,7 @@ FileParts file_parts(const Config& c, const ParamTable& table, std::int64_t rank
   f.axes.local_dims = c.bounds.local_dims;
   f.axes.hist_bins = c.spectrum.summary.bins;
   f.axes.bulk_limit = c.spectrum.bulk_limit;
+  f.axes.entanglement = entanglement_axes(c);  // driver/entangle.hpp
   f.meta.toral_version = TORAL_VERSION;
   f.meta.config_text = c.text;
   f.meta.config_source = c.source;
@@ -223,6 +238,26 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
   }
 
   install_stop_handlers();
+  // Distributed points (krylov, tangent) run on rank groups of consecutive
+  // ranks; the decision is made from the config alone, the same everywhere.
+  std::vector<char> distributed(points.size(), 0);
+  bool any_distributed = false;
+  for (std::int64_t i : mine) {
+    distributed[static_cast<std::size_t>(i)] = distributed_method(planned_method(c, points[static_cast<std::size_t>(i)]));
+    any_distributed = any_distributed || distributed[static_cast<std::size_t>(i)];
+  }
+  struct Groups {
+    bool phase = false;  // a distributed phase runs before the single-rank points
+    int size = 1, count = 1, rank = 0;
+    MPI_Comm comm = MPI_COMM_NULL;
+  } groups;
+  if (any_distributed) {
+    groups.phase = true;
+    groups.size = ranks_per_point(c, points, size);
+    groups.count = (size + groups.size - 1) / groups.size;
+    MPI_Comm_split(comm, rank / groups.size, rank, &groups.comm);
+    MPI_Comm_rank(groups.comm, &groups.rank);
+  }
   std::vector<PointRecord> local;  // records this rank computed now
   RunOutcome out;
   out.points = static_cast<std::int64_t>(mine.size());
@@ -231,14 +266,17 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
     // ---- coordinator (and a computing rank itself)
     std::vector<char> is_done(points.size(), 0);
     for (const auto& r : done) is_done[static_cast<std::size_t>(r.index)] = 1;
-    std::vector<std::int64_t> todo;
+    std::vector<std::int64_t> todo, todo_group;  // single-rank and distributed points
     for (std::int64_t i : mine)
-      if (!is_done[static_cast<std::size_t>(i)]) todo.push_back(i);
+      if (!is_done[static_cast<std::size_t>(i)])
+        (distributed[static_cast<std::size_t>(i)] ? todo_group : todo).push_back(i);
     std::vector<double> cost(points.size(), 0.0);
-    for (std::int64_t i : todo) cost[static_cast<std::size_t>(i)] = estimated_flops(c, points[static_cast<std::size_t>(i)]);
-    std::stable_sort(todo.begin(), todo.end(), [&](std::int64_t a, std::int64_t b) {
-      return cost[static_cast<std::size_t>(a)] > cost[static_cast<std::size_t>(b)];
-    });
+    for (auto* list : {&todo, &todo_group}) {
+      for (std::int64_t i : *list) cost[static_cast<std::size_t>(i)] = estimated_flops(c, points[static_cast<std::size_t>(i)]);
+      std::stable_sort(list->begin(), list->end(), [&](std::int64_t a, std::int64_t b) {
+        return cost[static_cast<std::size_t>(a)] > cost[static_cast<std::size_t>(b)];
+      });
+    }
 
     JournalWriter journal;
     if (from_journal)
@@ -267,10 +305,17 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
       all.push_back(std::move(r));
     };
 
-    std::size_t next = 0;
-    int active_workers = size - 1;
+    std::size_t next = 0, next_group = 0;
+    int active_workers = size - 1;         // ranks that will still ask for single points
+    int active_leaders = groups.phase ? groups.count - 1 : 0;  // other groups' leaders
+    bool own_group_open = groups.phase;    // group 0 still waits for distributed points
+    bool local_is_group = false;
     std::future<PointRecord> mine_now;
     auto last_checkpoint = Clock::now();
+    auto launch = [&](std::int64_t index, MPI_Comm on) {
+      const Point& p = points[static_cast<std::size_t>(index)];
+      mine_now = std::async(std::launch::async, [&c, &table, &p, on] { return compute_point(c, table, p, on); });
+    };
     while (true) {
       if (stop_requested()) {
         // Stop handing out work; the journal has every finished point.
@@ -283,10 +328,28 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
         std::_Exit(kExitInterrupted);
       }
       bool busy = false;
-      if (!mine_now.valid() && next < todo.size()) {
-        const Point& p = points[static_cast<std::size_t>(todo[next++])];
-        mine_now = std::async(std::launch::async, [&c, &table, &p] { return compute_point(c, table, p); });
-        busy = true;
+      if (!mine_now.valid()) {
+        if (own_group_open && next_group < todo_group.size()) {
+          // a distributed point for rank group 0 (this rank leads it)
+          long long w = todo_group[next_group++];
+          MPI_Request req;
+          MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups.comm, &req);
+          MPI_Wait(&req, MPI_STATUS_IGNORE);
+          launch(w, groups.comm);
+          local_is_group = true;
+          busy = true;
+        } else if (own_group_open) {
+          // no distributed point left to hand out: release group 0 to the single points
+          long long w = -1;
+          MPI_Request req;
+          MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups.comm, &req);
+          MPI_Wait(&req, MPI_STATUS_IGNORE);
+          own_group_open = false;
+        } else if (!own_group_open && next < todo.size()) {
+          launch(todo[next++], MPI_COMM_SELF);
+          local_is_group = false;
+          busy = true;
+        }
       }
       if (mine_now.valid() && mine_now.wait_for(std::chrono::milliseconds(0)) == std::future_status::ready) {
         PointRecord r = mine_now.get();
@@ -299,19 +362,27 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
       MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, comm, &flag, &st);
       if (flag) {
         busy = true;
-        if (st.MPI_TAG == kTagRecord) {
+        const bool group_msg = st.MPI_TAG == kTagGroupRequest || st.MPI_TAG == kTagGroupRecord;
+        if (st.MPI_TAG == kTagRecord || st.MPI_TAG == kTagGroupRecord)
           commit(decode_record(recv_bytes(st, comm)));
-        } else {
+        else
           MPI_Recv(nullptr, 0, MPI_BYTE, st.MPI_SOURCE, st.MPI_TAG, comm, MPI_STATUS_IGNORE);
-        }
         long long work = -1;
-        if (next < todo.size()) work = todo[next++];
-        else --active_workers;
-        MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagWork, comm);
+        if (group_msg) {
+          if (next_group < todo_group.size()) work = todo_group[next_group++];
+          else --active_leaders;
+          MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagGroupWork, comm);
+        } else {
+          if (next < todo.size()) work = todo[next++];
+          else --active_workers;
+          MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagWork, comm);
+        }
       }
       progress.update(static_cast<std::int64_t>(all.size()), failed);
-      if (next >= todo.size() && !mine_now.valid() && active_workers == 0) break;
-      if (o.checkpoint_seconds >= 0 && since(last_checkpoint) >= o.checkpoint_seconds && next < todo.size()) {
+      if (next >= todo.size() && !mine_now.valid() && active_workers == 0 && active_leaders == 0 && !own_group_open)
+        break;
+      if (o.checkpoint_seconds >= 0 && since(last_checkpoint) >= o.checkpoint_seconds &&
+          (next < todo.size() || next_group < todo_group.size())) {
         checkpoint();
         last_checkpoint = Clock::now();
       }
@@ -322,6 +393,7 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
           std::this_thread::sleep_for(std::chrono::milliseconds(1));
       }
     }
+    (void)local_is_group;
     progress.update(static_cast<std::int64_t>(all.size()), failed, true);
     journal.sync();
     // rank 0 writes the earlier records too
@@ -335,7 +407,32 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
     std::error_code ec;
     std::filesystem::remove(jpath, ec);  // the final file is complete: the journal has served
   } else {
-    // ---- worker
+    // ---- worker: first the distributed phase (as a group leader or member)
+    if (groups.phase) {
+      const bool leader = groups.rank == 0;
+      if (leader) MPI_Send(nullptr, 0, MPI_BYTE, 0, kTagGroupRequest, comm);
+      while (true) {
+        long long work = -1;
+        MPI_Request req;
+        if (leader) {
+          MPI_Irecv(&work, 1, MPI_LONG_LONG, 0, kTagGroupWork, comm, &req);
+          wait_watching(req, stop_worker);
+        }
+        MPI_Ibcast(&work, 1, MPI_LONG_LONG, 0, groups.comm, &req);
+        wait_watching(req, stop_worker);
+        if (work < 0) break;
+        const Point& p = points[static_cast<std::size_t>(work)];
+        const MPI_Comm gc = groups.comm;
+        auto fut = std::async(std::launch::async, [&c, &table, &p, gc] { return compute_point(c, table, p, gc); });
+        while (fut.wait_for(std::chrono::milliseconds(20)) != std::future_status::ready)
+          if (stop_requested()) stop_worker();
+        PointRecord r = fut.get();
+        if (leader) {
+          send_bytes(encode_record(r), 0, kTagGroupRecord, comm);
+          local.push_back(std::move(r));
+        }
+      }
+    }
     MPI_Send(nullptr, 0, MPI_BYTE, 0, kTagRequest, comm);
     while (true) {
       long long work = -1;
@@ -360,6 +457,7 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
     write_results(comm, o.output, true, parts.axes, parts.meta, out.points, local, nullptr);
   }
 
+  if (groups.comm != MPI_COMM_NULL) MPI_Comm_free(&groups.comm);
   long long counts[2] = {out.failed, out.computed};
   MPI_Bcast(counts, 2, MPI_LONG_LONG, 0, comm);
   out.failed = counts[0];

@@ -23,7 +23,7 @@ namespace {
 // io/result_file.cpp taught to write and read it); this assertion fires on
 // the reference platform when PointRecord changes size, as a reminder.
 #if defined(__GLIBCXX__) && defined(__x86_64__) && defined(__linux__)
-static_assert(sizeof(PointRecord) == 536,
+static_assert(sizeof(PointRecord) == 1000,
               "PointRecord changed: update visit() in io/journal.cpp (and bump kJournalVersion), "
               "io/result_file.cpp (writer and read_results) and docs/layout.md, then this size");
 #endif
@@ -121,7 +121,7 @@ class In {
   bool ok_ = true;
 };
 
-// The payload field order (format version 1). Shared by both directions.
+// The payload field order (format version 2). Shared by both directions.
 template <class A, class R>
 void visit(A& a, R& r) {
   a(r.index);
@@ -166,6 +166,27 @@ void visit(A& a, R& r) {
   a(r.ehrenfest_time);
   a(r.saturation_lyapunov);
   a(r.saturation_lightcone);
+  // /entanglement (format version 2)
+  a(r.ent_wall_time);
+  a(r.ent_cuts);
+  a(r.ent_lyapunov_rate);
+  a(r.gauss_entropy);
+  a(r.gauss_radius);
+  a(r.gauss_failures);
+  a(r.gauss_slope);
+  a(r.gauss_slope_over_lyapunov);
+  a(r.gauss_saturation_value);
+  a(r.gauss_saturation_time);
+  a(r.stab_entropy);
+  a(r.stab_slope);
+  a(r.stab_slope_over_lyapunov);
+  a(r.stab_slope_over_lightcone);
+  a(r.stab_saturation_value);
+  a(r.stab_saturation_time);
+  a(r.stab_cap);
+  a(r.stab_lightcone_rate);
+  a(r.stab_violations);
+  a(r.stab_profile);
 }
 
 std::string header_bytes(const std::string& config_hash, std::int64_t total) {
@@ -313,7 +334,8 @@ JournalContents read_journal(const std::string& path) {
     }
     PointRecord r;
     if (!try_decode_record(payload, r)) {
-      stop(JournalTail::Corrupt, "payload does not parse as a version-1 record");
+      stop(JournalTail::Corrupt,
+           "payload does not parse as a version-" + std::to_string(kJournalVersion) + " record");
       break;
     }
     c.records.push_back(std::move(r));

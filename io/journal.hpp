@@ -25,7 +25,8 @@
 namespace toral {
 
 // Format version written in the header; read_journal refuses others.
-constexpr std::uint32_t kJournalVersion = 1;
+// 2: the /entanglement fields of PointRecord were added.
+constexpr std::uint32_t kJournalVersion = 2;
 
 // `result_path + ".journal"`.
 std::string journal_path(const std::string& result_path);

@@ -167,6 +167,45 @@ std::pair<int, std::string> publish(const std::string& tmp, const std::string& p
 // The row a record goes to.
 std::int64_t row_of(const PointRecord& r) { return r.row == -1 ? r.index : r.row; }
 
+// The /entanglement fields of one record against the axes: each vector empty
+// or of its full length (all empty when the run has no /entanglement).
+std::string validate_entanglement(const PointRecord& r, const EntanglementAxes& e, const std::string& at) {
+  const std::size_t nr = e.present ? e.regions() : 0, nt = e.present ? e.times() : 0;
+  const std::size_t ng = e.present && e.gaussian ? 1 : 0, nn = e.present ? e.local_dims.size() : 0;
+  auto len = [&](const auto& v, std::size_t want, const char* name) -> std::string {
+    if (v.empty() || v.size() == want) return {};
+    return at + ": " + name + " has " + std::to_string(v.size()) + " values, expected " +
+           std::to_string(want) + " (or none)";
+  };
+  for (const std::string& m :
+       {len(r.ent_cuts, nr, "ent_cuts"), len(r.ent_lyapunov_rate, nr, "ent_lyapunov_rate"),
+        len(r.gauss_entropy, ng * nr * nt, "gauss_entropy"),
+        len(r.gauss_radius, ng * nr * nt, "gauss_radius"),
+        len(r.gauss_failures, ng * nr, "gauss_failures"), len(r.gauss_slope, ng * nr, "gauss_slope"),
+        len(r.gauss_slope_over_lyapunov, ng * nr, "gauss_slope_over_lyapunov"),
+        len(r.gauss_saturation_value, ng * nr, "gauss_saturation_value"),
+        len(r.gauss_saturation_time, ng * nr, "gauss_saturation_time"),
+        len(r.stab_entropy, nn * nr * nt, "stab_entropy"), len(r.stab_slope, nn * nr, "stab_slope"),
+        len(r.stab_slope_over_lyapunov, nn * nr, "stab_slope_over_lyapunov"),
+        len(r.stab_slope_over_lightcone, nn * nr, "stab_slope_over_lightcone"),
+        len(r.stab_saturation_value, nn * nr, "stab_saturation_value"),
+        len(r.stab_saturation_time, nn * nr, "stab_saturation_time"), len(r.stab_cap, nn * nr, "stab_cap"),
+        len(r.stab_lightcone_rate, nn * nr, "stab_lightcone_rate"),
+        len(r.stab_violations, nn * nr, "stab_violations")})
+    if (!m.empty()) return m;
+  if (!r.stab_profile.empty()) {
+    const std::size_t nk = e.present ? e.profile_times() : 0, block = nn * nk;
+    const std::size_t W = static_cast<std::size_t>(std::max<std::int64_t>(e.profile_sites, 0));
+    if (block == 0 || r.stab_profile.size() % block != 0 || r.stab_profile.size() / block > W)
+      return at + ": stab_profile has " + std::to_string(r.stab_profile.size()) +
+             " values, expected local_dims x profile times x (L + 1) = " + std::to_string(nn) + " x " +
+             std::to_string(nk) + " x (at most " + std::to_string(W) + ") (or none)";
+  }
+  if (!std::isnan(r.ent_wall_time) && !e.present)
+    return at + ": ent_wall_time is set but the run has no /entanglement";
+  return {};
+}
+
 // Rank-local validation of the records (sorted by row) against the axes.
 // `whole`: a whole-run file, where row must equal index.
 std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes& ax,
@@ -212,6 +251,8 @@ std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes&
           len(r.saturation_lyapunov, nl * nn, "saturation_lyapunov"),
           len(r.saturation_lightcone, nl * nn, "saturation_lightcone")})
       if (!e.empty()) return e;
+    const std::string e = validate_entanglement(r, ax.entanglement, at);
+    if (!e.empty()) return e;
   }
   return {};
 }
@@ -390,6 +431,163 @@ void put_whole_f64(const h5::Object& parent, bool writer, const std::string& nam
   describe(ds, units, meaning);
   h5::write_all(ds, writer, v.data(), H5T_NATIVE_DOUBLE);
   ds.close();
+}
+
+// Whole-dataset int64 array of shape dims, written by rank 0.
+void put_whole_i64(const h5::Object& parent, bool writer, const std::string& name,
+                   const std::vector<hsize_t>& dims, const std::vector<std::int64_t>& v,
+                   const std::string& units, const std::string& meaning) {
+  h5::Dataset ds = h5::create_dataset(parent, name, H5T_STD_I64LE, dims);
+  describe(ds, units, meaning);
+  h5::write_all(ds, writer, v.data(), H5T_NATIVE_INT64);
+  ds.close();
+}
+
+// Rows of width w of int64 vectors, -1 padded; empty -> a row of -1.
+template <class F>
+std::vector<std::int64_t> irows_of(const std::vector<const PointRecord*>& recs, std::size_t w, F f) {
+  std::vector<std::int64_t> v(recs.size() * w, -1);
+  for (std::size_t i = 0; i < recs.size(); ++i) {
+    const std::vector<std::int64_t>& x = f(*recs[i]);
+    std::copy_n(x.begin(), std::min(x.size(), w), v.begin() + static_cast<std::ptrdiff_t>(i * w));
+  }
+  return v;
+}
+
+void put_i64_rows(const Ctx& c, const std::string& name, const std::vector<hsize_t>& inner,
+                  const std::vector<std::int64_t>& buf, const std::string& units,
+                  const std::string& meaning) {
+  put(c, name, H5T_STD_I64LE, H5T_NATIVE_INT64, inner, buf, units, meaning);
+}
+
+void write_entanglement(const h5::Group& root, Ctx c, bool writer, const EntanglementAxes& e,
+                        const std::vector<const PointRecord*>& recs) {
+  const std::size_t nr = e.regions(), nt = e.times(), nn = e.local_dims.size();
+  std::size_t width = 0;
+  for (auto n : e.region_size) width = std::max(width, static_cast<std::size_t>(n));
+  const hsize_t hr = nr, ht = nt, hn = nn;
+  h5::Group g = h5::create_group(root, "entanglement");
+  c.parent = &g;
+  h5::set_attr(g, "meaning",
+               "exact entanglement dynamics S_A(t), t = 0..T, of fixed regions A from a product "
+               "initial state (docs/entanglement.md); NaN (int64: -1) where a region does not fit "
+               "the point's lattice or nothing was computed");
+  h5::set_attr(g, "slope_window",
+               "least-squares slope of S_A(t) over t = t0..T, t0 = min(ceil(3T/4), T-1); NaN for T = 0");
+  h5::set_attr(g, "saturation_fraction", 0.99);
+  h5::set_attr(g, "violation_tolerance", 1e-9);
+  {
+    std::vector<std::int64_t> t(nt);
+    std::iota(t.begin(), t.end(), std::int64_t{0});
+    put_coord(g, writer, "t", t, "periods", "time t of the last axis of every entropy curve: 0..T");
+  }
+  put_coord(g, writer, "region_size", e.region_size, "sites",
+            "|A|, the number of sites of each region (the region axis)");
+  put_whole_i64(g, writer, "region_sites", {hr, static_cast<hsize_t>(width)}, e.region_sites, "1",
+                "sites of each region (row), ascending; -1 padded to the largest region");
+  put_f64(c, "wall_time", {}, column(recs, [](const PointRecord& r) { return r.ent_wall_time; }), "s",
+          "wall-clock time spent in the exact entanglement kernels (part of /points/wall_time)");
+  put_i64_rows(c, "cuts", {hr},
+               irows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_cuts; }), "1",
+               "boundary cuts c of the region at the point: bonds with one end inside A; -1 where "
+               "the region does not fit");
+  put_f64(c, "lyapunov_rate", {hr},
+          rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_lyapunov_rate; }),
+          "nats/period",
+          "Lambda_|A|: sum of the 2 min(|A|, L-|A|) largest exponents of the point (as "
+          "/bounds/lyapunov_rate); NaN where fewer are known");
+  if (e.gaussian) {
+    h5::Group gg = h5::create_group(g, "gaussian");
+    Ctx cg = c;
+    cg.parent = &gg;
+    h5::set_attr(gg, "meaning",
+                 "certified entropies of Gaussian states on R^2L under x -> S x (kernels/"
+                 "gaussian_exact.hpp); the exact value lies within entropy +- radius");
+    put_f64(cg, "entropy", {hr, ht},
+            rows_of(recs, nr * nt, [](const PointRecord& r) -> const auto& { return r.gauss_entropy; }),
+            "nats", "midpoint of the certified von Neumann entropy S_A(t), [region][t]");
+    put_f64(cg, "radius", {hr, ht},
+            rows_of(recs, nr * nt, [](const PointRecord& r) -> const auto& { return r.gauss_radius; }),
+            "nats", "certified radius: |S_A(t) - entropy| <= radius, [region][t]");
+    put_i64_rows(cg, "failures", {hr},
+                 irows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_failures; }),
+                 "1", "number of t whose radius missed the target (then the point's status is "
+                      "entanglement_failed); -1 not computed");
+    put_f64(cg, "slope", {hr},
+            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope; }),
+            "nats/period", "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
+    put_f64(cg, "slope_over_lyapunov", {hr},
+            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope_over_lyapunov; }),
+            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate); about 1 for chaotic circuits");
+    put_f64(cg, "saturation_value", {hr},
+            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_saturation_value; }),
+            "nats", "max over t of S_A(t)");
+    put_f64(cg, "saturation_time", {hr},
+            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_saturation_time; }),
+            "periods", "first t with S_A(t) >= 0.99 saturation_value");
+    gg.close();
+  }
+  if (nn > 0) {
+    h5::Group gs = h5::create_group(g, "stabilizer");
+    Ctx cs = c;
+    cs.parent = &gs;
+    h5::set_attr(gs, "meaning",
+                 "exact entropies of stabilizer states of L qudits of dimension N under the circuit "
+                 "read as a Clifford circuit mod N (kernels/stabilizer.hpp), [N][region][t]");
+    put_coord(gs, writer, "local_dim", e.local_dims, "1", "local dimension N: axis 1 of every per-point dataset");
+    const hsize_t nnr = nn * nr;
+    put_f64(cs, "entropy", {hn, hr, ht},
+            rows_of(recs, nnr * nt, [](const PointRecord& r) -> const auto& { return r.stab_entropy; }),
+            "nats", "entanglement entropy S_A(t), exact (a sum of integer multiples of ln p)");
+    put_f64(cs, "slope", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope; }), "nats/period",
+            "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
+    put_f64(cs, "slope_over_lyapunov", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lyapunov; }),
+            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate)");
+    put_f64(cs, "slope_over_lightcone", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lightcone; }),
+            "1", "slope / lightcone_rate");
+    put_f64(cs, "saturation_value", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_saturation_value; }),
+            "nats", "max over t of S_A(t)");
+    put_f64(cs, "saturation_time", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_saturation_time; }),
+            "periods", "first t with S_A(t) >= 0.99 saturation_value");
+    put_f64(cs, "cap", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_cap; }), "nats",
+            "Hilbert-space cap min(|A|, L-|A|) ln N");
+    put_f64(cs, "lightcone_rate", {hn, hr},
+            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_lightcone_rate; }),
+            "nats/period", "light-cone rate 2 c ln N of the region's c cuts");
+    put_i64_rows(cs, "violations", {hn, hr},
+                 irows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_violations; }),
+                 "1", "number of t with S_A(t) > cap + 1e-9 or S_A(t) - S_A(0) > lightcone_rate t + 1e-9; "
+                      "0 by theorem; -1 not computed");
+    if (e.profile_stride > 0) {
+      const std::size_t nk = e.profile_times(), W = static_cast<std::size_t>(e.profile_sites);
+      std::vector<std::int64_t> tk(nk);
+      for (std::size_t k = 0; k < nk; ++k) tk[k] = static_cast<std::int64_t>(k) * e.profile_stride;
+      put_coord(gs, writer, "profile_t", tk, "periods", "time of axis 2 of profile: k * stride");
+      std::vector<double> buf(recs.size() * nn * nk * W, kNaN);
+      for (std::size_t i = 0; i < recs.size(); ++i) {
+        const std::vector<double>& x = recs[i]->stab_profile;
+        if (x.empty()) continue;
+        const std::size_t w = x.size() / (nn * nk);
+        for (std::size_t b = 0; b < nn * nk; ++b)
+          std::copy_n(x.begin() + static_cast<std::ptrdiff_t>(b * w), w,
+                      buf.begin() + static_cast<std::ptrdiff_t>((i * nn * nk + b) * W));
+      }
+      put_f64(cs, "profile", {hn, static_cast<hsize_t>(nk), static_cast<hsize_t>(W)}, buf, "nats",
+              "S([0, x)) of the site prefix [0, x) at t = profile_t[k], [N][k][x], x = 0..L; NaN "
+              "padded beyond the point's L");
+      h5::Dataset ds = h5::open_dataset(gs, "profile");
+      h5::set_attr(ds, "stride", e.profile_stride);
+      ds.close();
+    }
+    gs.close();
+  }
+  g.close();
 }
 
 void write_stats(const h5::Group& root, bool writer, const EnsembleStats& st) {
@@ -691,6 +889,9 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
       g.close();
     }
 
+    // ---- /entanglement
+    if (ax.entanglement.present) write_entanglement(root, c, rank == 0, ax.entanglement, recs);
+
     // ---- /stats
     if (stats) write_stats(root, rank == 0, *stats);
     root.close();
@@ -704,12 +905,13 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
 
 const std::vector<std::string>& status_labels() {
   static const std::vector<std::string> v{"ok",        "invalid_model",  "overflow", "solver_failed",
-                                          "no_method", "internal_error", "pending"};
+                                          "no_method", "internal_error", "pending",
+                                          "entanglement_failed"};
   return v;
 }
 
 const std::vector<std::string>& method_labels() {
-  static const std::vector<std::string> v{"none", "bloch", "dense", "krylov"};
+  static const std::vector<std::string> v{"none", "bloch", "dense", "krylov", "tangent"};
   return v;
 }
 
@@ -762,6 +964,19 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   int bulk = ax.bulk_limit ? 1 : 0;
   bcast(comm, bulk);
   ax.bulk_limit = bulk != 0;
+  {
+    EntanglementAxes& e = ax.entanglement;
+    int flags = (e.present ? 1 : 0) | (e.gaussian ? 2 : 0);
+    bcast(comm, flags);
+    e.present = (flags & 1) != 0;
+    e.gaussian = (flags & 2) != 0;
+    bcast(comm, e.periods);
+    bcast(comm, e.region_size);
+    bcast(comm, e.region_sites);
+    bcast(comm, e.local_dims);
+    bcast(comm, e.profile_stride);
+    bcast(comm, e.profile_sites);
+  }
   bcast(comm, mt.toral_version);
   bcast(comm, mt.config_text);
   bcast(comm, mt.config_source);
@@ -785,6 +1000,16 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
                         " .. " + std::to_string(-red[1]) + ")");
     if (rows < 0) raise(kOther, "write_results: negative rows");
     if (ax.hist_bins < 0) raise(kOther, "write_results: negative hist_bins");
+    if (ax.entanglement.present) {
+      const EntanglementAxes& e = ax.entanglement;
+      std::int64_t width = 0;
+      for (auto n : e.region_size) width = std::max(width, n);
+      if (e.periods < 0 || e.profile_stride < 0 || e.profile_sites < 0 ||
+          std::any_of(e.region_size.begin(), e.region_size.end(), [](std::int64_t n) { return n < 0; }) ||
+          e.region_sites.size() != e.region_size.size() * static_cast<std::size_t>(width))
+        raise(kOther, "write_results: inconsistent entanglement axes (negative sizes, or region_sites "
+                      "is not regions x max region size)");
+    }
     if (mt.total_points < 0) raise(kOther, "write_results: negative meta.total_points");
     if (mt.total_points == 0) mt.total_points = rows;
     if (mt.total_points < rows)
@@ -1189,6 +1414,98 @@ ResultData read_file(const Reader& rd) {
              &PointRecord::saturation_lyapunov);
     each_row(rd.f64("/bounds/saturation_lightcone", {hP, L, N}), l * m,
              &PointRecord::saturation_lightcone);
+  }
+
+  // ---- /entanglement (optional: runs with an [entanglement] table)
+  if (rd.has("/entanglement")) {
+    rd.group("/entanglement");
+    EntanglementAxes& e = ax.entanglement;
+    e.present = true;
+    const hsize_t nt = rd.length("/entanglement/t");
+    if (nt < 1) bad_file(path, "corrupt: /entanglement/t is empty");
+    e.periods = static_cast<std::int64_t>(nt) - 1;
+    const hsize_t nr = rd.length("/entanglement/region_size");
+    e.region_size = rd.i64("/entanglement/region_size", {nr});
+    {
+      const auto d = h5::dims(rd.dataset("/entanglement/region_sites"));
+      if (d.size() != 2 || d[0] != nr)
+        bad_file(path, "corrupt: /entanglement/region_sites has shape " + shape_text(d) + ", expected (" +
+                           std::to_string(nr) + ", width)");
+      e.region_sites = rd.i64("/entanglement/region_sites", d);
+    }
+    const std::size_t r_ = static_cast<std::size_t>(nr), t_ = static_cast<std::size_t>(nt);
+    auto each_irow = [&](const std::vector<std::int64_t>& v, std::size_t w,
+                         std::vector<std::int64_t> PointRecord::*m) {
+      for (std::size_t i = 0; i < n; ++i) {
+        const auto b = v.begin() + static_cast<std::ptrdiff_t>(i * w), en = b + static_cast<std::ptrdiff_t>(w);
+        if (std::all_of(b, en, [](std::int64_t x) { return x == -1; }))
+          recs[i].*m = {};
+        else
+          recs[i].*m = {b, en};
+      }
+    };
+    each_f64(rd.f64("/entanglement/wall_time", {hP}), &PointRecord::ent_wall_time);
+    each_irow(rd.i64("/entanglement/cuts", {hP, nr}), r_, &PointRecord::ent_cuts);
+    each_row(rd.f64("/entanglement/lyapunov_rate", {hP, nr}), r_, &PointRecord::ent_lyapunov_rate);
+    e.gaussian = rd.has("/entanglement/gaussian");
+    if (e.gaussian) {
+      rd.group("/entanglement/gaussian");
+      const std::string b = "/entanglement/gaussian/";
+      each_row(rd.f64(b + "entropy", {hP, nr, nt}), r_ * t_, &PointRecord::gauss_entropy);
+      each_row(rd.f64(b + "radius", {hP, nr, nt}), r_ * t_, &PointRecord::gauss_radius);
+      each_irow(rd.i64(b + "failures", {hP, nr}), r_, &PointRecord::gauss_failures);
+      each_row(rd.f64(b + "slope", {hP, nr}), r_, &PointRecord::gauss_slope);
+      each_row(rd.f64(b + "slope_over_lyapunov", {hP, nr}), r_, &PointRecord::gauss_slope_over_lyapunov);
+      each_row(rd.f64(b + "saturation_value", {hP, nr}), r_, &PointRecord::gauss_saturation_value);
+      each_row(rd.f64(b + "saturation_time", {hP, nr}), r_, &PointRecord::gauss_saturation_time);
+    }
+    if (rd.has("/entanglement/stabilizer")) {
+      rd.group("/entanglement/stabilizer");
+      const std::string b = "/entanglement/stabilizer/";
+      const hsize_t nn = rd.length(b + "local_dim");
+      e.local_dims = rd.i64(b + "local_dim", {nn});
+      const std::size_t m = static_cast<std::size_t>(nn) * r_;
+      each_row(rd.f64(b + "entropy", {hP, nn, nr, nt}), m * t_, &PointRecord::stab_entropy);
+      each_row(rd.f64(b + "slope", {hP, nn, nr}), m, &PointRecord::stab_slope);
+      each_row(rd.f64(b + "slope_over_lyapunov", {hP, nn, nr}), m, &PointRecord::stab_slope_over_lyapunov);
+      each_row(rd.f64(b + "slope_over_lightcone", {hP, nn, nr}), m, &PointRecord::stab_slope_over_lightcone);
+      each_row(rd.f64(b + "saturation_value", {hP, nn, nr}), m, &PointRecord::stab_saturation_value);
+      each_row(rd.f64(b + "saturation_time", {hP, nn, nr}), m, &PointRecord::stab_saturation_time);
+      each_row(rd.f64(b + "cap", {hP, nn, nr}), m, &PointRecord::stab_cap);
+      each_row(rd.f64(b + "lightcone_rate", {hP, nn, nr}), m, &PointRecord::stab_lightcone_rate);
+      each_irow(rd.i64(b + "violations", {hP, nn, nr}), m, &PointRecord::stab_violations);
+      if (rd.has(b + "profile")) {
+        h5::Dataset pd = rd.dataset(b + "profile");
+        e.profile_stride = rd.int_attr(pd, "stride");
+        if (e.profile_stride < 1) bad_file(path, "corrupt: " + b + "profile has stride " + std::to_string(e.profile_stride));
+        const auto d = h5::dims(pd);
+        const hsize_t nk = static_cast<hsize_t>(e.profile_times());
+        if (d.size() != 4 || d[0] != hP || d[1] != nn || d[2] != nk)
+          bad_file(path, "corrupt: " + b + "profile has shape " + shape_text(d) + ", expected (" +
+                             std::to_string(P) + ", " + std::to_string(nn) + ", " + std::to_string(nk) + ", width)");
+        e.profile_sites = static_cast<std::int64_t>(d[3]);
+        const std::size_t W = static_cast<std::size_t>(d[3]), blocks = static_cast<std::size_t>(nn * nk);
+        const auto v = h5::read_doubles(pd);
+        for (std::size_t i = 0; i < n; ++i) {
+          // The point's own width L + 1: up to the last cut with a value.
+          const std::size_t base = i * blocks * W;
+          std::size_t w = 0;
+          for (std::size_t q = 0; q < blocks; ++q)
+            for (std::size_t x = W; x > w; --x)
+              if (!std::isnan(v[base + q * W + x - 1])) {
+                w = x;
+                break;
+              }
+          std::vector<double>& out = recs[i].stab_profile;
+          out.clear();
+          if (w == 0) continue;
+          out.reserve(blocks * w);
+          for (std::size_t q = 0; q < blocks; ++q)
+            out.insert(out.end(), v.begin() + static_cast<std::ptrdiff_t>(base + q * W),
+                       v.begin() + static_cast<std::ptrdiff_t>(base + q * W + w));
+        }
+      }
+    }
   }
 
   // ---- /stats

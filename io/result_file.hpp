@@ -93,7 +93,7 @@ struct ResultData {
 // Serial (no MPI needed; plain sec2 file access). Reads a layout-1 result
 // file back. Validates that it is a toral file (root attributes
 // toral_version, layout_version == 1, every layout-1 dataset present with
-// consistent shapes) and throws ResultFileError with a one-line message
+// consistent shapes; /entanglement is optional) and throws ResultFileError with a one-line message
 // naming the file otherwise ("not a toral result file", "unsupported layout
 // version", "missing dataset /x/y", "corrupt: ..."). HDF5's automatic error
 // printing is off while it runs.
@@ -104,7 +104,9 @@ struct ResultData {
 // exponent_errors and the fixed-width vectors (histograms, bounds) come back
 // empty where the file row is all NaN; messages are truncated to
 // kMessageBytes - 1 bytes; `index` is the row for files without
-// /points/index. Objects added by later toral versions are ignored.
+// /points/index; entanglement int64 rows that are all -1 come back empty and
+// profile rows are cut to the point's width L + 1. Objects added by later
+// toral versions are ignored.
 ResultData read_results(const std::string& path);
 
 // ISO 8601 UTC time of now, e.g. "2024-05-01T12:34:56Z" (for RunMeta::created).

@@ -15,6 +15,7 @@ const char* method_name(Method m) {
     case Method::Bloch: return "bloch";
     case Method::Dense: return "dense";
     case Method::Krylov: return "krylov";
+    case Method::Tangent: return "tangent";
     default: return "none";
   }
 }

@@ -8,7 +8,7 @@
 
 namespace toral {
 
-enum class Method { None = 0, Bloch = 1, Dense = 2, Krylov = 3 };
+enum class Method { None = 0, Bloch = 1, Dense = 2, Krylov = 3, Tangent = 4 };
 const char* method_name(Method m);
 
 // A full Lyapunov spectrum of S: all 2L exponents ln|mu|, sorted descending.

@@ -217,3 +217,146 @@ disorder = "redrawn"
 matrix = [[1,1],[0,1]]
 )", {"t.toml:3", "needs a drawn gate parameter"});
 }
+
+// ---------------------------------------------------------------- [entanglement]
+
+namespace {
+// kBase (largest L = 16) plus an [entanglement] table whose first body line is line 9.
+std::string ent(const std::string& body) { return std::string(kBase) + "[entanglement]\n" + body; }
+}  // namespace
+
+TEST(Config, EntanglementParses) {
+  const Config c = parse_config(ent(R"(periods = 20
+offset = 2
+regions = [1, 3, [7, 0, 5]]
+stabilizer_dims = [2, 3, 4]
+profile = true
+profile_stride = 5
+[[entanglement.initial]]
+sites = { from = 0, to = 3 }
+gaussian = "squeezed"
+squeeze = "6/4"
+stabilizer = "momentum"
+[[entanglement.initial]]
+sites = [5]
+stabilizer = [1, 1]
+[[entanglement.initial]]
+sites = 6
+gaussian = "squeezed"
+squeeze = 2
+)"),
+                                "t.toml");
+  const EntanglementSpec& e = c.entanglement;
+  ASSERT_TRUE(e.enabled);
+  EXPECT_EQ(e.periods, 20);
+  EXPECT_TRUE(e.gaussian);  // the default
+  ASSERT_EQ(e.regions.size(), 3u);
+  EXPECT_EQ(e.regions[0].sites, (std::vector<std::int64_t>{2}));  // block of 1 at the offset
+  EXPECT_EQ(e.regions[1].sites, (std::vector<std::int64_t>{2, 3, 4}));
+  EXPECT_EQ(e.regions[2].sites, (std::vector<std::int64_t>{0, 5, 7}));  // explicit sites, sorted
+  EXPECT_EQ(e.stabilizer_dims, (std::vector<std::int64_t>{2, 3, 4}));
+  ASSERT_EQ(e.initial.size(), 3u);
+  EXPECT_TRUE(e.initial[0].gaussian.squeezed);
+  EXPECT_EQ(e.initial[0].gaussian.num, 3);  // 6/4 reduced
+  EXPECT_EQ(e.initial[0].gaussian.den, 2);
+  EXPECT_EQ(e.initial[2].gaussian.num, 2);
+  EXPECT_EQ(e.initial[2].gaussian.den, 1);
+  const auto g = gaussian_initial(e, 8);
+  const auto s = stabilizer_initial(e, 8);
+  ASSERT_EQ(g.size(), 8u);
+  EXPECT_TRUE(g[3].squeezed);
+  EXPECT_FALSE(g[4].squeezed);  // uncovered: vacuum
+  EXPECT_EQ(s[0].kind, LocalState::Momentum);
+  EXPECT_EQ(s[4].kind, LocalState::Position);  // uncovered: position
+  EXPECT_EQ(s[5].kind, LocalState::Line);
+  EXPECT_EQ(stabilizer_initial(e, 4).size(), 4u);  // sites beyond a smaller L are dropped
+  const EntanglementAxes ax = entanglement_axes(c);
+  EXPECT_TRUE(ax.present);
+  EXPECT_EQ(ax.region_size, (std::vector<std::int64_t>{1, 3, 3}));
+  EXPECT_EQ(ax.region_sites, (std::vector<std::int64_t>{2, -1, -1, 2, 3, 4, 0, 5, 7}));
+  EXPECT_EQ(ax.profile_stride, 5);
+  EXPECT_EQ(ax.profile_sites, 17);  // largest L + 1
+  EXPECT_EQ(ax.profile_times(), 5u);
+  // absent table: nothing
+  EXPECT_FALSE(parse_config(kBase, "t.toml").entanglement.enabled);
+  EXPECT_FALSE(entanglement_axes(parse_config(kBase, "t.toml")).present);
+}
+
+TEST(Config, EntanglementLocatedErrors) {
+  // unknown keys, in the table and in an initial block
+  expect_error(ent("periods = 4\nregions = [1]\nperods = 3\n"), {"t.toml:11", "entanglement.perods", "unknown key"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\ncolour = 2\n"),
+               {"t.toml:13", "entanglement.initial[0].colour", "unknown key"});
+  expect_error("entanglement = 3\n" + std::string(kBase), {"t.toml:1", "entanglement", "must be a table"});
+  // periods
+  expect_error(ent("regions = [1]\n"), {"t.toml:8", "entanglement", "missing 'periods'"});
+  expect_error(ent("periods = -1\nregions = [1]\n"), {"t.toml:9", "entanglement.periods", "outside"});
+  expect_error(ent("periods = 2.5\nregions = [1]\n"), {"t.toml:9", "entanglement.periods", "must be an integer"});
+  // bad N (stabilizer_dimension_supported: N >= 2), twice the same N
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = [2, 1]\n"),
+               {"t.toml:11", "entanglement.stabilizer_dims", "N = 1 is not supported"});
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = [3, 3]\n"),
+               {"t.toml:11", "entanglement.stabilizer_dims", "listed twice"});
+  // bad line: gcd(a, b, N) must be 1 (kernels/stabilizer.hpp) for every N
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = [2]\n[[entanglement.initial]]\nsites = 0\n"
+                   "stabilizer = [2, 4]\n"),
+               {"t.toml:14", "entanglement.initial[0].stabilizer", "N = 2"});
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = [3, 4]\n[[entanglement.initial]]\nsites = 0\n"
+                   "stabilizer = [2, 2]\n"),
+               {"t.toml:14", "not a valid state for N = 4"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\nstabilizer = [1]\n"),
+               {"t.toml:13", "entanglement.initial[0].stabilizer", "[a, b]"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\nstabilizer = \"plus\"\n"),
+               {"t.toml:13", "\"plus\" is not one of"});
+  // bad squeeze: s > 0, a rational of integers, no floats, only with "squeezed"
+  for (const char* bad : {"\"0/3\"", "\"-1/2\"", "0"})
+    expect_error(ent(std::string("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\n"
+                                 "gaussian = \"squeezed\"\nsqueeze = ") + bad + "\n"),
+                 {"t.toml:14", "entanglement.initial[0].squeeze", "must be > 0"});
+  for (const char* bad : {"\"abc\"", "\"3/0\"", "\"1/-2\"", "\"1.5\""})
+    expect_error(ent(std::string("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\n"
+                                 "gaussian = \"squeezed\"\nsqueeze = ") + bad + "\n"),
+                 {"t.toml:14", "entanglement.initial[0].squeeze", "not a rational"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\ngaussian = \"squeezed\"\n"
+                   "squeeze = 1.5\n"),
+               {"t.toml:14", "no floats"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\ngaussian = \"squeezed\"\n"),
+               {"t.toml:11", "entanglement.initial[0]", "needs 'squeeze'"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\nsqueeze = \"3/2\"\n"),
+               {"t.toml:13", "given but gaussian is not \"squeezed\""});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 0\ngaussian = \"thermal\"\n"),
+               {"t.toml:13", "entanglement.initial[0].gaussian", "\"thermal\""});
+  // regions out of range for every point (largest L = 16), bad regions
+  expect_error(ent("periods = 4\nregions = [1, [0, 20]]\n"),
+               {"t.toml:10", "entanglement.regions[1]", "need L >= 21", "largest L = 16"});
+  expect_error(ent("periods = 4\noffset = 10\nregions = [7]\n"),
+               {"t.toml:11", "entanglement.regions[0]", "10..16", "need L >= 17"});
+  expect_error(ent("periods = 4\nregions = [0]\n"), {"t.toml:10", "entanglement.regions[0]", "below 1"});
+  expect_error(ent("periods = 4\nregions = [[1, 1]]\n"), {"t.toml:10", "entanglement.regions[0]", "listed twice"});
+  expect_error(ent("periods = 4\nregions = [[-1]]\n"), {"t.toml:10", "negative"});
+  expect_error(ent("periods = 4\nregions = [\"all\"]\n"), {"t.toml:10", "entanglement.regions[0]", "a string"});
+  expect_error(ent("periods = 4\nregions = 2\n"), {"t.toml:10", "entanglement.regions", "must be a list"});
+  expect_error(ent("periods = 4\nregions = []\n"), {"t.toml:10", "empty"});
+  expect_error(ent("periods = 4\n"), {"t.toml:8", "missing 'regions'"});
+  expect_error(ent("periods = 4\nregions = [1]\noffset = -2\n"), {"t.toml:11", "entanglement.offset", ">= 0"});
+  // initial sites: overlapping blocks, beyond every lattice
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = {from = 0, to = 3}\n"
+                   "[[entanglement.initial]]\nsites = [3, 4]\n"),
+               {"t.toml:14", "entanglement.initial[1].sites", "site 3 is already set by entanglement.initial[0]"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\nsites = 16\n"),
+               {"t.toml:12", "entanglement.initial[0].sites", "beyond every lattice"});
+  expect_error(ent("periods = 4\nregions = [1]\n[[entanglement.initial]]\ngaussian = \"vacuum\"\n"),
+               {"t.toml:11", "missing 'sites'"});
+  expect_error(ent("periods = 4\nregions = [1]\ninitial = 3\n"), {"t.toml:11", "[[entanglement.initial]]"});
+  // what to compute
+  expect_error(ent("periods = 4\nregions = [1]\ngaussian = false\n"), {"t.toml:8", "nothing to compute"});
+  expect_error(ent("periods = 4\nregions = [1]\ngaussian = 1\n"), {"t.toml:11", "entanglement.gaussian", "true or false"});
+  expect_error(ent("periods = 4\nregions = [1]\nprofile = true\n"), {"t.toml:11", "entanglement.profile", "stabilizer_dims"});
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = 2\nprofile = true\nprofile_stride = 0\n"),
+               {"t.toml:13", "entanglement.profile_stride", "at least 1"});
+  expect_error(ent("periods = 4\nregions = [1]\nstabilizer_dims = 2\nprofile_stride = 2\n"),
+               {"t.toml:12", "profile is not true"});
+  // a profile alone needs no regions
+  EXPECT_NO_THROW(parse_config(ent("periods = 4\nregions = []\ngaussian = false\nstabilizer_dims = 2\nprofile = true\n"),
+                               "t.toml"));
+}

@@ -54,8 +54,27 @@ const std::vector<std::int64_t> kEll = {1, 2, 3};
 const std::vector<std::int64_t> kN = {2, 5};
 constexpr int kBins = 4;
 constexpr std::int64_t kFailed = 3, kFailedLong = 7, kNoBounds = 6, kPending = 9;
+// /entanglement: T = 3, two regions ({0} and {1, 2, 5}: the second does not
+// fit the L = 4 points), N in {2, 3}, a profile every 2 periods, Lmax = 8.
+constexpr std::int64_t kT = 3, kStride = 2, kNoEnt = 5;
+const std::vector<std::int64_t> kRegionSize = {1, 3};
+const std::vector<std::int64_t> kRegionSites = {0, -1, -1, 1, 2, 5};
+const std::vector<std::int64_t> kStabN = {2, 3};
 
-RunAxes make_axes(bool bulk = true) {
+EntanglementAxes make_ent_axes() {
+  EntanglementAxes e;
+  e.present = true;
+  e.periods = kT;
+  e.region_size = kRegionSize;
+  e.region_sites = kRegionSites;
+  e.gaussian = true;
+  e.local_dims = kStabN;
+  e.profile_stride = kStride;
+  e.profile_sites = 9;
+  return e;
+}
+
+RunAxes make_axes(bool bulk = true, bool ent = true) {
   RunAxes a;
   a.param_names = {"sweep", "sites", "seed"};
   a.param_meanings = {"index into sweep_names", "lattice size L", "disorder seed"};
@@ -64,7 +83,22 @@ RunAxes make_axes(bool bulk = true) {
   a.local_dims = kN;
   a.hist_bins = kBins;
   a.bulk_limit = bulk;
+  if (ent) a.entanglement = make_ent_axes();
   return a;
+}
+
+// The record without its /entanglement fields (a run without the table).
+PointRecord without_entanglement(PointRecord r) {
+  const PointRecord d;
+  r.ent_wall_time = d.ent_wall_time;
+  for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations}) v->clear();
+  for (auto* v : {&r.ent_lyapunov_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
+                  &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time,
+                  &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
+                  &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate,
+                  &r.stab_profile})
+    v->clear();
+  return r;
 }
 
 RunMeta make_meta(const std::string& tag = "first") {
@@ -148,6 +182,44 @@ PointRecord make_record(std::int64_t i) {
         r.saturation_lyapunov.push_back(cap / r.lyapunov_rate[l] + 1000.0 * l + 100.0 * n2);
         r.saturation_lightcone.push_back(cap / r.lightcone_rate[n2] + 10.0 * l + n2);
       }
+  }
+  if (i != kNoEnt) {  // kNoEnt: gates redrawn in time, nothing computed
+    const std::int64_t L = r.params[1];
+    const std::size_t nr = kRegionSize.size(), nt = kT + 1, nn = kStabN.size();
+    const std::size_t nk = kT / kStride + 1, w = static_cast<std::size_t>(L) + 1;
+    r.ent_wall_time = 0.01 * x + 0.001;
+    for (std::size_t k = 0; k < nr; ++k) {
+      const bool fits = k == 0 || L >= 6;
+      const double kk = static_cast<double>(k);
+      r.ent_cuts.push_back(fits ? static_cast<std::int64_t>(2 + k) : -1);
+      r.ent_lyapunov_rate.push_back(fits ? x + 0.5 * kk : kNaN);
+      for (std::size_t t = 0; t < nt; ++t) {
+        r.gauss_entropy.push_back(fits ? 0.1 * static_cast<double>(t) * (kk + 1) + x : kNaN);
+        r.gauss_radius.push_back(fits ? 1e-13 * static_cast<double>(t + 1) : kNaN);
+      }
+      r.gauss_failures.push_back(fits ? (i == 4 && k == 0 ? 1 : 0) : -1);
+      r.gauss_slope.push_back(fits ? 0.1 * (kk + 1) : kNaN);
+      r.gauss_slope_over_lyapunov.push_back(fits ? 0.1 * (kk + 1) / (x + 0.5 * kk) : kNaN);
+      r.gauss_saturation_value.push_back(fits ? 0.3 * (kk + 1) + x : kNaN);
+      r.gauss_saturation_time.push_back(fits ? 3.0 : kNaN);
+    }
+    for (std::size_t n = 0; n < nn; ++n)
+      for (std::size_t k = 0; k < nr; ++k) {
+        const bool fits = k == 0 || L >= 6;
+        const double lnN = std::log(static_cast<double>(kStabN[n]));
+        for (std::size_t t = 0; t < nt; ++t)
+          r.stab_entropy.push_back(fits ? lnN * static_cast<double>(std::min<std::size_t>(t, k + 1)) : kNaN);
+        r.stab_slope.push_back(fits ? 0.0 : kNaN);
+        r.stab_slope_over_lyapunov.push_back(fits ? 0.0 : kNaN);
+        r.stab_slope_over_lightcone.push_back(fits ? 0.0 : kNaN);
+        r.stab_saturation_value.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
+        r.stab_saturation_time.push_back(fits ? static_cast<double>(k + 1) : kNaN);
+        r.stab_cap.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
+        r.stab_lightcone_rate.push_back(fits ? 2.0 * static_cast<double>(2 + k) * lnN : kNaN);
+        r.stab_violations.push_back(fits ? 0 : -1);
+      }
+    for (std::size_t q = 0; q < nn * nk; ++q)
+      for (std::size_t xx = 0; xx < w; ++xx) r.stab_profile.push_back(0.5 * x + static_cast<double>(q) + 0.01 * static_cast<double>(xx));
   }
   return r;
 }
@@ -274,6 +346,24 @@ void expect_f64(hid_t f, const std::string& path, std::vector<hsize_t> dims,
   }
 }
 
+// Expected int64 dataset of shape (P, inner...) whose row i is row(i).
+void expect_i64_rows(hid_t f, const std::string& path, std::vector<hsize_t> dims,
+                     const std::function<std::vector<std::int64_t>(const PointRecord&)>& row,
+                     const std::vector<PointRecord>& recs) {
+  ASSERT_TRUE(link_exists(f, path)) << path;
+  EXPECT_EQ(shape_of(f, path), dims) << path;
+  EXPECT_TRUE(type_is(f, path, H5T_STD_I64LE)) << path;
+  const auto v = read_raw<std::int64_t>(f, path, H5T_NATIVE_INT64);
+  std::size_t w = 1;
+  for (std::size_t k = 1; k < dims.size(); ++k) w *= dims[k];
+  ASSERT_EQ(v.size(), recs.size() * w) << path;
+  for (std::size_t i = 0; i < recs.size(); ++i) {
+    const auto want = row(recs[i]);
+    ASSERT_EQ(want.size(), w) << path;
+    for (std::size_t k = 0; k < w; ++k) EXPECT_EQ(v[i * w + k], want[k]) << path << " point " << i << " element " << k;
+  }
+}
+
 void expect_i64(hid_t f, const std::string& path,
                 const std::function<std::int64_t(const PointRecord&)>& val,
                 const std::vector<PointRecord>& recs) {
@@ -326,7 +416,9 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   RFile rf(path);
   ASSERT_GE(rf.id, 0) << "cannot open " << path;
   const hid_t f = rf.id;
-  const auto recs = all_records(P);
+  auto recs = all_records(P);
+  if (!ax.entanglement.present)
+    for (auto& r : recs) r = without_entanglement(r);
   const hsize_t hP = static_cast<hsize_t>(P);
   const std::size_t nl = ax.region_sizes.size(), nn = ax.local_dims.size();
 
@@ -366,10 +458,11 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
     EXPECT_EQ(me[i], recs[i].method) << i;
   }
   EXPECT_EQ(attr_strings(f, "/points/method", "labels"),
-            (std::vector<std::string>{"none", "bloch", "dense", "krylov"}));
+            (std::vector<std::string>{"none", "bloch", "dense", "krylov", "tangent"}));
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[0], "ok");
-  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 7u);
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 8u);
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[6], "pending");
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels")[7], "entanglement_failed");
   {
     ASSERT_TRUE(link_exists(f, "/points/message"));
     EXPECT_EQ(shape_of(f, "/points/message"), std::vector<hsize_t>{hP});
@@ -456,6 +549,69 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   expect_f64(f, "/bounds/saturation_lyapunov", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lyapunov, nl * nn); }, recs);
   expect_f64(f, "/bounds/saturation_lightcone", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lightcone, nl * nn); }, recs);
 
+  // /entanglement
+  const EntanglementAxes& e = ax.entanglement;
+  EXPECT_EQ(link_exists(f, "/entanglement"), e.present);
+  std::size_t ent_count = 0;
+  if (e.present) {
+    const hsize_t hr = e.regions(), ht = e.times(), hn = e.local_dims.size(), hk = e.profile_times();
+    const std::size_t r_ = hr, t_ = ht, n_ = hn, k_ = hk, W = static_cast<std::size_t>(e.profile_sites);
+    {
+      std::vector<std::int64_t> t(t_);
+      for (std::size_t k = 0; k < t_; ++k) t[k] = static_cast<std::int64_t>(k);
+      EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/t", H5T_NATIVE_INT64), t);
+    }
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_size", H5T_NATIVE_INT64), e.region_size);
+    EXPECT_EQ(shape_of(f, "/entanglement/region_sites"), (std::vector<hsize_t>{hr, 3}));
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_sites", H5T_NATIVE_INT64), e.region_sites);
+    EXPECT_TRUE(type_is(f, "/entanglement/region_sites", H5T_STD_I64LE));
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/local_dim", H5T_NATIVE_INT64), e.local_dims);
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/profile_t", H5T_NATIVE_INT64),
+              (std::vector<std::int64_t>{0, 2}));
+    EXPECT_EQ(attr_int(f, "/entanglement/stabilizer/profile", "stride"), kStride);
+    expect_f64(f, "/entanglement/wall_time", {hP}, [](const PointRecord& r) { return std::vector{r.ent_wall_time}; }, recs);
+    auto ipad = [](const std::vector<std::int64_t>& v, std::size_t w) {
+      std::vector<std::int64_t> o(w, -1);
+      std::copy_n(v.begin(), std::min(w, v.size()), o.begin());
+      return o;
+    };
+    expect_i64_rows(f, "/entanglement/cuts", {hP, hr}, [&](const PointRecord& r) { return ipad(r.ent_cuts, r_); }, recs);
+    expect_f64(f, "/entanglement/lyapunov_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.ent_lyapunov_rate, r_); }, recs);
+    const std::string g = "/entanglement/gaussian/";
+    expect_f64(f, g + "entropy", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_entropy, r_ * t_); }, recs);
+    expect_f64(f, g + "radius", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_radius, r_ * t_); }, recs);
+    expect_i64_rows(f, g + "failures", {hP, hr}, [&](const PointRecord& r) { return ipad(r.gauss_failures, r_); }, recs);
+    expect_f64(f, g + "slope", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope, r_); }, recs);
+    expect_f64(f, g + "slope_over_lyapunov", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope_over_lyapunov, r_); }, recs);
+    expect_f64(f, g + "saturation_value", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_value, r_); }, recs);
+    expect_f64(f, g + "saturation_time", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_time, r_); }, recs);
+    const std::string b = "/entanglement/stabilizer/";
+    const std::size_t m = n_ * r_;
+    expect_f64(f, b + "entropy", {hP, hn, hr, ht}, [&](const PointRecord& r) { return pad(r.stab_entropy, m * t_); }, recs);
+    for (const auto& [name, field] : std::vector<std::pair<std::string, std::vector<double> PointRecord::*>>{
+             {"slope", &PointRecord::stab_slope},
+             {"slope_over_lyapunov", &PointRecord::stab_slope_over_lyapunov},
+             {"slope_over_lightcone", &PointRecord::stab_slope_over_lightcone},
+             {"saturation_value", &PointRecord::stab_saturation_value},
+             {"saturation_time", &PointRecord::stab_saturation_time},
+             {"cap", &PointRecord::stab_cap},
+             {"lightcone_rate", &PointRecord::stab_lightcone_rate}})
+      expect_f64(f, b + name, {hP, hn, hr}, [&, field = field](const PointRecord& r) { return pad(r.*field, m); }, recs);
+    expect_i64_rows(f, b + "violations", {hP, hn, hr}, [&](const PointRecord& r) { return ipad(r.stab_violations, m); }, recs);
+    expect_f64(f, b + "profile", {hP, hn, hk, static_cast<hsize_t>(W)}, [&](const PointRecord& r) {
+      std::vector<double> o(n_ * k_ * W, kNaN);
+      if (!r.stab_profile.empty()) {
+        const std::size_t w = r.stab_profile.size() / (n_ * k_);
+        for (std::size_t q = 0; q < n_ * k_; ++q)
+          std::copy_n(r.stab_profile.begin() + static_cast<std::ptrdiff_t>(q * w), w, o.begin() + static_cast<std::ptrdiff_t>(q * W));
+      }
+      return o;
+    }, recs);
+    // t, region_size, region_sites, wall_time, cuts, lyapunov_rate; gaussian 7;
+    // stabilizer: local_dim + 9 + profile_t + profile
+    ent_count = 6 + (e.gaussian ? 7 : 0) + (n_ ? 10 + (e.profile_stride ? 2 : 0) : 0);
+  }
+
   // units and meaning on every dataset; the documented units pinned
   const std::map<std::string, std::string> units = {
       {"/points/wall_time", "s"},
@@ -478,11 +634,36 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/bounds/ehrenfest_time", "periods"},
       {"/bounds/saturation_lyapunov", "periods"},
       {"/bounds/saturation_lightcone", "periods"},
+      {"/entanglement/t", "periods"},
+      {"/entanglement/region_size", "sites"},
+      {"/entanglement/region_sites", "1"},
+      {"/entanglement/wall_time", "s"},
+      {"/entanglement/cuts", "1"},
+      {"/entanglement/lyapunov_rate", "nats/period"},
+      {"/entanglement/gaussian/entropy", "nats"},
+      {"/entanglement/gaussian/radius", "nats"},
+      {"/entanglement/gaussian/failures", "1"},
+      {"/entanglement/gaussian/slope", "nats/period"},
+      {"/entanglement/gaussian/slope_over_lyapunov", "1"},
+      {"/entanglement/gaussian/saturation_value", "nats"},
+      {"/entanglement/gaussian/saturation_time", "periods"},
+      {"/entanglement/stabilizer/local_dim", "1"},
+      {"/entanglement/stabilizer/entropy", "nats"},
+      {"/entanglement/stabilizer/slope", "nats/period"},
+      {"/entanglement/stabilizer/slope_over_lyapunov", "1"},
+      {"/entanglement/stabilizer/slope_over_lightcone", "1"},
+      {"/entanglement/stabilizer/saturation_value", "nats"},
+      {"/entanglement/stabilizer/saturation_time", "periods"},
+      {"/entanglement/stabilizer/cap", "nats"},
+      {"/entanglement/stabilizer/lightcone_rate", "nats/period"},
+      {"/entanglement/stabilizer/violations", "1"},
+      {"/entanglement/stabilizer/profile_t", "periods"},
+      {"/entanglement/stabilizer/profile", "nats"},
   };
   const auto all = datasets_of(f);
   // /points: params + index, status, message, method, wall_time; /chaos: 12
   // + 8 in /chaos/solver; /limit: 5; /bounds: 9
-  const std::size_t expected_count = ax.param_names.size() + 5 + 12 + 8 + (ax.bulk_limit ? 5 : 0) + 9;
+  const std::size_t expected_count = ax.param_names.size() + 5 + 12 + 8 + (ax.bulk_limit ? 5 : 0) + 9 + ent_count;
   EXPECT_EQ(all.size(), expected_count);
   for (const auto& d : all) {
     h5::Object o(H5Oopen(f, d.c_str(), H5P_DEFAULT), H5Oclose, path, d);
@@ -837,6 +1018,18 @@ TEST(ResultFile, RejectsInconsistentRecords) {
     if (g_rank == g_size - 1) mine.back().hilbert_cap.push_back(1.0);
     expect_refused(mine, "hilbert_cap");
   }
+  // entanglement vectors of the wrong length, a profile wider than Lmax + 1
+  {
+    auto mine = my_records(Dist::Cyclic);
+    if (g_rank == g_size - 1) mine.back().stab_violations.push_back(0);
+    expect_refused(mine, "stab_violations");
+    mine = my_records(Dist::Cyclic);
+    if (g_rank == 0) mine.front().gauss_entropy.pop_back();
+    expect_refused(mine, "gauss_entropy");
+    mine = my_records(Dist::Cyclic);
+    if (g_rank == 0) mine.front().stab_profile.assign(2 * 2 * 10, 0.0);  // 10 > Lmax + 1 = 9
+    expect_refused(mine, "stab_profile");
+  }
   // wrong number of parameters, an index out of range
   {
     auto mine = my_records(Dist::Cyclic);
@@ -875,6 +1068,10 @@ TEST(ResultFile, AllFailedAndEmptyAxes) {
     EXPECT_EQ(shape_of(rf.id, "/bounds/region_size"), (std::vector<hsize_t>{0}));
     EXPECT_EQ(shape_of(rf.id, "/bounds/hilbert_cap"), (std::vector<hsize_t>{5, 0, 2}));
     EXPECT_EQ(shape_of(rf.id, "/bounds/lightcone_rate"), (std::vector<hsize_t>{5, 2}));
+    EXPECT_EQ(shape_of(rf.id, "/entanglement/gaussian/entropy"), (std::vector<hsize_t>{5, 2, 4}));
+    EXPECT_EQ(shape_of(rf.id, "/entanglement/stabilizer/profile"), (std::vector<hsize_t>{5, 2, 2, 9}));
+    for (double x : read_raw<double>(rf.id, "/entanglement/stabilizer/entropy", H5T_NATIVE_DOUBLE)) EXPECT_TRUE(std::isnan(x));
+    for (auto c : read_raw<std::int64_t>(rf.id, "/entanglement/stabilizer/violations", H5T_NATIVE_INT64)) EXPECT_EQ(c, -1);
     for (double x : read_raw<double>(rf.id, "/chaos/lambda_max", H5T_NATIVE_DOUBLE)) EXPECT_TRUE(std::isnan(x));
     for (double x : read_raw<double>(rf.id, "/bounds/lightcone_rate", H5T_NATIVE_DOUBLE)) EXPECT_TRUE(std::isnan(x));
     for (auto c : read_raw<std::int64_t>(rf.id, "/chaos/exponent_count", H5T_NATIVE_INT64)) EXPECT_EQ(c, 0);
@@ -895,6 +1092,8 @@ TEST(ResultFile, ZeroPoints) {
     EXPECT_EQ(attr_int(rf.id, "/", "point_count"), 0);
     EXPECT_EQ(shape_of(rf.id, "/chaos/lambda_max"), std::vector<hsize_t>{0});
     EXPECT_EQ(shape_of(rf.id, "/bounds/hilbert_cap"), (std::vector<hsize_t>{0, 3, 2}));
+    EXPECT_EQ(shape_of(rf.id, "/entanglement/stabilizer/entropy"), (std::vector<hsize_t>{0, 2, 2, 4}));
+    EXPECT_EQ(shape_of(rf.id, "/entanglement/stabilizer/profile"), (std::vector<hsize_t>{0, 2, 2, 9}));
   });
 }
 
@@ -931,8 +1130,15 @@ PointRecord canonical(PointRecord r, std::int64_t row) {
   };
   for (auto* v : {&r.exponent_errors, &r.hist_counts, &r.hist_edges, &r.limit_hist_counts,
                   &r.limit_hist_edges, &r.lyapunov_rate, &r.hilbert_cap, &r.lightcone_rate,
-                  &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone})
+                  &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone,
+                  &r.ent_lyapunov_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
+                  &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time,
+                  &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
+                  &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate,
+                  &r.stab_profile})
     canon(*v);
+  for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations})
+    if (std::all_of(v->begin(), v->end(), [](std::int64_t x) { return x == -1; })) v->clear();
   return r;
 }
 
@@ -982,6 +1188,26 @@ void expect_same_record(const PointRecord& a, const PointRecord& b, const std::s
   v(a.ehrenfest_time, b.ehrenfest_time, "ehrenfest_time");
   v(a.saturation_lyapunov, b.saturation_lyapunov, "saturation_lyapunov");
   v(a.saturation_lightcone, b.saturation_lightcone, "saturation_lightcone");
+  d(a.ent_wall_time, b.ent_wall_time, "ent_wall_time");
+  EXPECT_EQ(a.ent_cuts, b.ent_cuts);
+  v(a.ent_lyapunov_rate, b.ent_lyapunov_rate, "ent_lyapunov_rate");
+  v(a.gauss_entropy, b.gauss_entropy, "gauss_entropy");
+  v(a.gauss_radius, b.gauss_radius, "gauss_radius");
+  EXPECT_EQ(a.gauss_failures, b.gauss_failures);
+  v(a.gauss_slope, b.gauss_slope, "gauss_slope");
+  v(a.gauss_slope_over_lyapunov, b.gauss_slope_over_lyapunov, "gauss_slope_over_lyapunov");
+  v(a.gauss_saturation_value, b.gauss_saturation_value, "gauss_saturation_value");
+  v(a.gauss_saturation_time, b.gauss_saturation_time, "gauss_saturation_time");
+  v(a.stab_entropy, b.stab_entropy, "stab_entropy");
+  v(a.stab_slope, b.stab_slope, "stab_slope");
+  v(a.stab_slope_over_lyapunov, b.stab_slope_over_lyapunov, "stab_slope_over_lyapunov");
+  v(a.stab_slope_over_lightcone, b.stab_slope_over_lightcone, "stab_slope_over_lightcone");
+  v(a.stab_saturation_value, b.stab_saturation_value, "stab_saturation_value");
+  v(a.stab_saturation_time, b.stab_saturation_time, "stab_saturation_time");
+  v(a.stab_cap, b.stab_cap, "stab_cap");
+  v(a.stab_lightcone_rate, b.stab_lightcone_rate, "stab_lightcone_rate");
+  EXPECT_EQ(a.stab_violations, b.stab_violations);
+  v(a.stab_profile, b.stab_profile, "stab_profile");
 }
 
 void expect_same_axes(const RunAxes& a, const RunAxes& b) {
@@ -992,6 +1218,16 @@ void expect_same_axes(const RunAxes& a, const RunAxes& b) {
   EXPECT_EQ(a.local_dims, b.local_dims);
   EXPECT_EQ(a.hist_bins, b.hist_bins);
   EXPECT_EQ(a.bulk_limit, b.bulk_limit);
+  const EntanglementAxes &x = a.entanglement, &y = b.entanglement;
+  EXPECT_EQ(x.present, y.present);
+  EXPECT_EQ(x.periods, y.periods);
+  EXPECT_EQ(x.region_size, y.region_size);
+  EXPECT_EQ(x.region_sites, y.region_sites);
+  EXPECT_EQ(x.gaussian, y.gaussian);
+  EXPECT_EQ(x.local_dims, y.local_dims);
+  EXPECT_EQ(x.profile_stride, y.profile_stride);
+  EXPECT_EQ(x.profile_sites, y.profile_sites);
+  EXPECT_TRUE(x == y);
 }
 
 void expect_same_meta(const RunMeta& a, const RunMeta& b) {
@@ -1200,6 +1436,63 @@ TEST(ResultFile, ReadResultsRoundTrip) {
   });
 }
 
+// A run without [entanglement]: no /entanglement group, and records carrying
+// entanglement fields are refused; with only some parts (no gaussian, no
+// profile) only those groups are written, and read back.
+TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
+  const std::string p = scratch("noent.h5");
+  auto stripped = my_records(Dist::Cyclic);
+  for (auto& r : stripped) r = without_entanglement(r);
+  write_results(MPI_COMM_WORLD, p, false, make_axes(true, false), make_meta(), kP, stripped);
+  barrier();
+  on_rank0([&] {
+    check_file(p, make_axes(true, false), make_meta());
+    const ResultData d = read_results(p);
+    EXPECT_FALSE(d.axes.entanglement.present);
+    for (const auto& r : d.records) EXPECT_TRUE(r.gauss_entropy.empty() && r.ent_cuts.empty());
+  });
+  try {
+    write_results(MPI_COMM_WORLD, scratch("noent_bad.h5"), false, make_axes(true, false), make_meta(), kP,
+                  my_records(Dist::Cyclic));
+    ADD_FAILURE() << "records with entanglement fields accepted without entanglement axes";
+  } catch (const ResultFileError& e) {
+    EXPECT_NE(std::string(e.what()).find("expected 0"), std::string::npos) << e.what();
+  }
+  barrier();
+  // stabilizer only, no profile
+  RunAxes ax = make_axes();
+  ax.entanglement.gaussian = false;
+  ax.entanglement.profile_stride = ax.entanglement.profile_sites = 0;
+  auto part = my_records(Dist::Cyclic);
+  for (auto& r : part) {
+    for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
+                    &r.gauss_saturation_value, &r.gauss_saturation_time, &r.stab_profile})
+      v->clear();
+    r.gauss_failures.clear();
+  }
+  const std::string q = scratch("stab_only.h5");
+  write_results(MPI_COMM_WORLD, q, false, ax, make_meta(), kP, part);
+  barrier();
+  on_rank0([&] {
+    {
+      RFile rf(q);
+      EXPECT_TRUE(link_exists(rf.id, "/entanglement/stabilizer/entropy"));
+      EXPECT_FALSE(link_exists(rf.id, "/entanglement/gaussian"));
+      EXPECT_FALSE(link_exists(rf.id, "/entanglement/stabilizer/profile"));
+    }
+    const ResultData d = read_results(q);
+    expect_same_axes(d.axes, ax);
+    for (std::int64_t i = 0; i < kP; ++i) {
+      PointRecord r = make_record(i);
+      for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
+                      &r.gauss_saturation_value, &r.gauss_saturation_time, &r.stab_profile})
+        v->clear();
+      r.gauss_failures.clear();
+      expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+    }
+  });
+}
+
 TEST(ResultFile, RejectsBadRowsAndIndices) {
   const std::string p = scratch("badrows.h5");
   auto expect_refused = [&](const RunMeta& m, std::int64_t rows, const std::vector<PointRecord>& mine,
@@ -1390,11 +1683,12 @@ TEST(ResultFile, ReadResultsOfOlderLayout1File) {
     {
       EditFile f(p);
       ASSERT_GE(f.id, 0);
-      for (const char* l : {"/points/index", "/chaos/exponent_error", "/chaos/solver"})
+      for (const char* l : {"/points/index", "/chaos/exponent_error", "/chaos/solver", "/entanglement"})
         ASSERT_GE(H5Ldelete(f.id, l, H5P_DEFAULT), 0) << l;
       for (const char* a : {"config_hash", "total_points", "shard"}) ASSERT_GE(H5Adelete(f.id, a), 0) << a;
     }
     const ResultData d = read_results(p);
+    EXPECT_FALSE(d.axes.entanglement.present);
     EXPECT_EQ(d.meta.config_hash, "");
     EXPECT_EQ(d.meta.total_points, kP);
     EXPECT_EQ(d.meta.shard, "");
@@ -1411,6 +1705,7 @@ TEST(ResultFile, ReadResultsOfOlderLayout1File) {
       r.solver_ranks = defaults.solver_ranks;
       r.cluster_count = defaults.cluster_count;
       r.cluster_spread = defaults.cluster_spread;
+      r = without_entanglement(r);
       expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
     }
   });

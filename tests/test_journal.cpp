@@ -110,6 +110,26 @@ void expect_identical(const PointRecord& a, const PointRecord& b, const std::str
   v(a.ehrenfest_time, b.ehrenfest_time, "ehrenfest_time");
   v(a.saturation_lyapunov, b.saturation_lyapunov, "saturation_lyapunov");
   v(a.saturation_lightcone, b.saturation_lightcone, "saturation_lightcone");
+  d(a.ent_wall_time, b.ent_wall_time, "ent_wall_time");
+  EXPECT_EQ(a.ent_cuts, b.ent_cuts);
+  v(a.ent_lyapunov_rate, b.ent_lyapunov_rate, "ent_lyapunov_rate");
+  v(a.gauss_entropy, b.gauss_entropy, "gauss_entropy");
+  v(a.gauss_radius, b.gauss_radius, "gauss_radius");
+  EXPECT_EQ(a.gauss_failures, b.gauss_failures);
+  v(a.gauss_slope, b.gauss_slope, "gauss_slope");
+  v(a.gauss_slope_over_lyapunov, b.gauss_slope_over_lyapunov, "gauss_slope_over_lyapunov");
+  v(a.gauss_saturation_value, b.gauss_saturation_value, "gauss_saturation_value");
+  v(a.gauss_saturation_time, b.gauss_saturation_time, "gauss_saturation_time");
+  v(a.stab_entropy, b.stab_entropy, "stab_entropy");
+  v(a.stab_slope, b.stab_slope, "stab_slope");
+  v(a.stab_slope_over_lyapunov, b.stab_slope_over_lyapunov, "stab_slope_over_lyapunov");
+  v(a.stab_slope_over_lightcone, b.stab_slope_over_lightcone, "stab_slope_over_lightcone");
+  v(a.stab_saturation_value, b.stab_saturation_value, "stab_saturation_value");
+  v(a.stab_saturation_time, b.stab_saturation_time, "stab_saturation_time");
+  v(a.stab_cap, b.stab_cap, "stab_cap");
+  v(a.stab_lightcone_rate, b.stab_lightcone_rate, "stab_lightcone_rate");
+  EXPECT_EQ(a.stab_violations, b.stab_violations);
+  v(a.stab_profile, b.stab_profile, "stab_profile");
 }
 
 // Awkward doubles: NaNs with payloads and signs, infinities, signed zeros,
@@ -189,6 +209,30 @@ PointRecord make_record(std::int64_t i) {
   r.ehrenfest_time = vec(u + 9, i % 2 ? 2 : 0);
   r.saturation_lyapunov = vec(u + 10, (u % 3) * 2);
   r.saturation_lightcone = vec(u + 11, (u % 3) * 2);
+  // /entanglement: absent for some records, else regions x t etc. with awkward values
+  if (i % 4 != 3) {
+    const std::size_t nr = 1 + u % 3, nt = 2 + u % 5, nn = u % 3;
+    r.ent_wall_time = special(u + 12);
+    for (std::size_t k = 0; k < nr; ++k) r.ent_cuts.push_back(k % 2 ? -1 : static_cast<std::int64_t>(k + u));
+    r.ent_lyapunov_rate = vec(u + 13, nr);
+    r.gauss_entropy = vec(u + 14, nr * nt);
+    r.gauss_radius = vec(u + 15, nr * nt);
+    r.gauss_failures.assign(nr, i % 5 == 0 ? -1 : static_cast<std::int64_t>(u));
+    r.gauss_slope = vec(u + 16, nr);
+    r.gauss_slope_over_lyapunov = vec(u + 17, nr);
+    r.gauss_saturation_value = vec(u + 18, nr);
+    r.gauss_saturation_time = vec(u + 19, nr);
+    r.stab_entropy = vec(u + 20, nn * nr * nt);
+    r.stab_slope = vec(u + 21, nn * nr);
+    r.stab_slope_over_lyapunov = vec(u + 22, nn * nr);
+    r.stab_slope_over_lightcone = vec(u + 23, nn * nr);
+    r.stab_saturation_value = vec(u + 24, nn * nr);
+    r.stab_saturation_time = vec(u + 25, nn * nr);
+    r.stab_cap = vec(u + 26, nn * nr);
+    r.stab_lightcone_rate = vec(u + 27, nn * nr);
+    r.stab_violations.assign(nn * nr, static_cast<std::int64_t>(i % 2));
+    r.stab_profile = vec(u + 28, nn * (1 + u % 2) * (3 + u % 4));
+  }
   return r;
 }
 
@@ -401,8 +445,14 @@ TEST(Journal, BadHeadersAreErrors) {
   }
   {
     std::string b = full;
-    b[8] = 2;  // version 2
-    expect_error(b, "unsupported journal format version 2");
+    b[8] = static_cast<char>(kJournalVersion + 1);  // a later version
+    expect_error(b, "unsupported journal format version " + std::to_string(kJournalVersion + 1));
+  }
+  {
+    // a journal of the previous format (version 1, before /entanglement) is refused by name
+    std::string b = full;
+    b[8] = 1;
+    expect_error(b, "unsupported journal format version 1 (this toral reads version 2)");
   }
   {
     std::string b = full;

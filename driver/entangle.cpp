@@ -1,0 +1,673 @@
+#include "entangle.hpp"
+
+#include <toml++/toml.h>
+
+#include <algorithm>
+#include <charconv>
+#include <chrono>
+#include <cmath>
+#include <iomanip>
+#include <numeric>
+#include <set>
+#include <sstream>
+
+#include "bounds.hpp"
+#include "config.hpp"
+#include "sweep.hpp"
+
+namespace toral {
+
+namespace {
+
+constexpr std::int64_t kMaxPeriods = 10'000'000;
+constexpr std::int64_t kMaxScan = 10'000'000;
+constexpr double kSaturationFraction = 0.99;
+constexpr double kViolationTolerance = 1e-9;
+
+// Located errors in the format of config.cpp: "SOURCE:LINE: key: what".
+class Loc {
+ public:
+  explicit Loc(std::string source) : source_(std::move(source)) {}
+  [[noreturn]] void fail(std::int64_t line, const std::string& key, const std::string& what) const {
+    std::ostringstream os;
+    os << source_;
+    if (line > 0) os << ':' << line;
+    os << ": " << (key.empty() ? "" : key + ": ") << what;
+    throw ConfigError(os.str());
+  }
+  [[noreturn]] void fail(const toml::node& n, const std::string& key, const std::string& what) const {
+    fail(line(n), key, what);
+  }
+  static std::int64_t line(const toml::node& n) { return static_cast<std::int64_t>(n.source().begin.line); }
+
+  void only_keys(const toml::table& t, const std::string& path, std::set<std::string> allowed) const {
+    for (auto&& [k, v] : t) {
+      const std::string key(k.str());
+      if (!allowed.count(key)) {
+        std::string list;
+        for (const auto& a : allowed) list += (list.empty() ? "" : ", ") + a;
+        fail(static_cast<std::int64_t>(k.source().begin.line), path + "." + key,
+             "unknown key (allowed here: " + list + ")");
+      }
+    }
+  }
+  std::int64_t integer(const toml::node& n, const std::string& key) const {
+    if (!n.is_integer()) fail(n, key, std::string("must be an integer, not ") + type_name(n));
+    return n.as_integer()->get();
+  }
+  bool boolean(const toml::node& n, const std::string& key) const {
+    if (!n.is_boolean()) fail(n, key, std::string("must be true or false, not ") + type_name(n));
+    return n.as_boolean()->get();
+  }
+  std::string string(const toml::node& n, const std::string& key) const {
+    if (!n.is_string()) fail(n, key, std::string("must be a string, not ") + type_name(n));
+    return n.as_string()->get();
+  }
+  // An integer, a list of integers, or a range {from, to, step} (inclusive).
+  std::vector<std::int64_t> int_values(const toml::node& n, const std::string& key) const {
+    std::vector<std::int64_t> out;
+    if (n.is_integer()) {
+      out.push_back(n.as_integer()->get());
+    } else if (n.is_array()) {
+      for (const auto& e : *n.as_array()) out.push_back(integer(e, key));
+    } else if (n.is_table()) {
+      const auto& t = *n.as_table();
+      only_keys(t, key, {"from", "to", "step"});
+      if (!t.get("from") || !t.get("to")) fail(n, key, "a range needs both 'from' and 'to'");
+      const std::int64_t from = integer(*t.get("from"), key + ".from");
+      const std::int64_t to = integer(*t.get("to"), key + ".to");
+      const std::int64_t step = t.get("step") ? integer(*t.get("step"), key + ".step") : (to >= from ? 1 : -1);
+      if (step == 0) fail(*t.get("step"), key + ".step", "must not be 0");
+      if ((to - from) / step >= kMaxScan) fail(n, key, "range has more than 10^7 values");
+      for (std::int64_t v = from; step > 0 ? v <= to : v >= to; v += step) out.push_back(v);
+    } else {
+      fail(n, key, std::string("must be an integer, a list of integers or a range {from, to}, not ") + type_name(n));
+    }
+    if (out.empty()) fail(n, key, "empty: no values");
+    return out;
+  }
+  static const char* type_name(const toml::node& n) {
+    switch (n.type()) {
+      case toml::node_type::table: return "a table";
+      case toml::node_type::array: return "an array";
+      case toml::node_type::string: return "a string";
+      case toml::node_type::integer: return "an integer";
+      case toml::node_type::floating_point: return "a float";
+      case toml::node_type::boolean: return "a boolean";
+      default: return "a date/time";
+    }
+  }
+
+ private:
+  std::string source_;
+};
+
+std::string range_text(const std::vector<std::int64_t>& sites) {
+  if (sites.empty()) return "{}";
+  bool contiguous = true;
+  for (std::size_t i = 1; i < sites.size(); ++i) contiguous = contiguous && sites[i] == sites[i - 1] + 1;
+  if (contiguous && sites.size() > 2)
+    return std::to_string(sites.front()) + ".." + std::to_string(sites.back());
+  std::string s = "{";
+  for (std::size_t i = 0; i < sites.size(); ++i) s += (i ? ", " : "") + std::to_string(sites[i]);
+  return s + "}";
+}
+
+// "3/2", "-1/4", "7": a rational p/q with q > 0; false when malformed.
+bool parse_rational(const std::string& s, std::int64_t& num, std::int64_t& den) {
+  const std::size_t slash = s.find('/');
+  auto whole = [](std::string_view v, std::int64_t& out) {
+    if (v.empty()) return false;
+    const char* b = v.data();
+    if (*b == '+') ++b;
+    const auto [p, ec] = std::from_chars(b, v.data() + v.size(), out);
+    return ec == std::errc() && p == v.data() + v.size();
+  };
+  const std::string_view sv(s);
+  if (slash == std::string::npos) {
+    den = 1;
+    return whole(sv, num);
+  }
+  return whole(sv.substr(0, slash), num) && whole(sv.substr(slash + 1), den) && den > 0;
+}
+
+std::int64_t max_sites(const Config& c) {
+  std::int64_t m = 0;
+  for (const auto& s : c.sweeps)
+    for (std::int64_t L : s.sites) m = std::max(m, L);
+  return m;
+}
+
+}  // namespace
+
+// ---------------------------------------------------------------- config
+
+EntanglementSpec parse_entanglement(const std::string& text, const std::string& source, const Config& c) {
+  EntanglementSpec e;
+  const Loc cx(source);
+  toml::table root;
+  try {
+    root = toml::parse(text, source);
+  } catch (const toml::parse_error& err) {  // parse_config has reported syntax errors already
+    cx.fail(static_cast<std::int64_t>(err.source().begin.line), "", std::string("TOML syntax: ") +
+                                                                       std::string(err.description()));
+  }
+  const toml::node* node = root.get("entanglement");
+  if (!node) return e;
+  const std::string P = "entanglement";
+  if (!node->is_table()) cx.fail(*node, P, std::string("must be a table, not ") + Loc::type_name(*node));
+  const toml::table& t = *node->as_table();
+  const std::int64_t tline = Loc::line(*node);
+  cx.only_keys(t, P, {"periods", "regions", "offset", "gaussian", "stabilizer_dims", "profile", "profile_stride",
+                      "initial"});
+  e.enabled = true;
+  const std::int64_t Lmax = max_sites(c);
+
+  const toml::node* per = t.get("periods");
+  if (!per) cx.fail(tline, P, "missing 'periods' (the number T of periods; curves at t = 0..T)");
+  e.periods = cx.integer(*per, P + ".periods");
+  if (e.periods < 0 || e.periods > kMaxPeriods)
+    cx.fail(*per, P + ".periods", "T = " + std::to_string(e.periods) + " is outside 0..10^7");
+
+  if (const toml::node* o = t.get("offset")) {
+    e.offset = cx.integer(*o, P + ".offset");
+    if (e.offset < 0) cx.fail(*o, P + ".offset", "must be >= 0 (a site index)");
+  }
+  if (const toml::node* g = t.get("gaussian")) e.gaussian = cx.boolean(*g, P + ".gaussian");
+
+  if (const toml::node* d = t.get("stabilizer_dims")) {
+    if (d->is_array() && d->as_array()->empty()) {
+      // an explicit empty list: no stabilizer curves
+    } else {
+      e.stabilizer_dims = cx.int_values(*d, P + ".stabilizer_dims");
+    }
+    std::set<std::int64_t> seen;
+    for (std::int64_t N : e.stabilizer_dims) {
+      std::string why;
+      if (!stabilizer_dimension_supported(N, why))
+        cx.fail(*d, P + ".stabilizer_dims", "N = " + std::to_string(N) + " is not supported: " + why);
+      if (!seen.insert(N).second) cx.fail(*d, P + ".stabilizer_dims", "N = " + std::to_string(N) + " is listed twice");
+    }
+  }
+  if (const toml::node* pr = t.get("profile")) {
+    e.profile = cx.boolean(*pr, P + ".profile");
+    if (e.profile && e.stabilizer_dims.empty())
+      cx.fail(*pr, P + ".profile", "the profile is a stabilizer quantity: it needs stabilizer_dims");
+  }
+  if (const toml::node* st = t.get("profile_stride")) {
+    e.profile_stride = cx.integer(*st, P + ".profile_stride");
+    if (!e.profile) cx.fail(*st, P + ".profile_stride", "given but profile is not true");
+    if (e.profile_stride < 1) cx.fail(*st, P + ".profile_stride", "must be at least 1");
+  }
+  if (!e.gaussian && e.stabilizer_dims.empty())
+    cx.fail(tline, P, "nothing to compute: gaussian is false and stabilizer_dims is empty");
+
+  // ---- regions
+  const toml::node* rg = t.get("regions");
+  if (!rg) cx.fail(tline, P, "missing 'regions' (a list of block sizes ell and/or site lists)");
+  if (!rg->is_array())
+    cx.fail(*rg, P + ".regions",
+            std::string("must be a list of block sizes ell and/or site lists, not ") + Loc::type_name(*rg));
+  const auto& ra = *rg->as_array();
+  if (ra.empty() && !e.profile) cx.fail(*rg, P + ".regions", "empty: give at least one region (or profile = true)");
+  for (std::size_t i = 0; i < ra.size(); ++i) {
+    const std::string key = P + ".regions[" + std::to_string(i) + "]";
+    const toml::node& n = ra[i];
+    EntanglementRegion reg;
+    reg.line = Loc::line(n);
+    if (n.is_integer()) {
+      const std::int64_t ell = n.as_integer()->get();
+      if (ell < 1) cx.fail(n, key, "block size " + std::to_string(ell) + " is below 1");
+      if (ell > kMaxScan) cx.fail(n, key, "block size " + std::to_string(ell) + " is above 10^7");
+      reg.block = true;
+      for (std::int64_t s = 0; s < ell; ++s) reg.sites.push_back(e.offset + s);
+    } else if (n.is_array()) {
+      if (n.as_array()->empty()) cx.fail(n, key, "empty site list");
+      for (const auto& s : *n.as_array()) {
+        const std::int64_t v = cx.integer(s, key);
+        if (v < 0) cx.fail(s, key, "site " + std::to_string(v) + " is negative");
+        reg.sites.push_back(v);
+      }
+      std::sort(reg.sites.begin(), reg.sites.end());
+      const auto dup = std::adjacent_find(reg.sites.begin(), reg.sites.end());
+      if (dup != reg.sites.end()) cx.fail(n, key, "site " + std::to_string(*dup) + " is listed twice");
+    } else {
+      cx.fail(n, key, std::string("must be a block size ell (an integer) or a list of sites, not ") +
+                          Loc::type_name(n));
+    }
+    const std::int64_t need = reg.sites.back() + 1;
+    if (need > Lmax)
+      cx.fail(n, key,
+              "sites " + range_text(reg.sites) + " need L >= " + std::to_string(need) +
+                  ", but no lattice of the run is that large (largest L = " + std::to_string(Lmax) + ")");
+    e.regions.push_back(std::move(reg));
+  }
+
+  // ---- [[entanglement.initial]]
+  if (const toml::node* in = t.get("initial")) {
+    if (!in->is_array_of_tables())
+      cx.fail(*in, P + ".initial", "must be an array of tables: write [[entanglement.initial]]");
+    std::vector<std::int64_t> owner;  // site -> block index + 1
+    const auto& arr = *in->as_array();
+    for (std::size_t i = 0; i < arr.size(); ++i) {
+      const std::string key = P + ".initial[" + std::to_string(i) + "]";
+      const toml::table& b = *arr[i].as_table();
+      EntanglementInitial blk;
+      blk.line = Loc::line(arr[i]);
+      cx.only_keys(b, key, {"sites", "gaussian", "squeeze", "stabilizer"});
+      const toml::node* sn = b.get("sites");
+      if (!sn) cx.fail(blk.line, key, "missing 'sites' (an integer, a list or a range {from, to})");
+      blk.sites = cx.int_values(*sn, key + ".sites");
+      for (std::int64_t s : blk.sites) {
+        if (s < 0) cx.fail(*sn, key + ".sites", "site " + std::to_string(s) + " is negative");
+        if (s >= Lmax)
+          cx.fail(*sn, key + ".sites",
+                  "site " + std::to_string(s) + " is beyond every lattice of the run (largest L = " +
+                      std::to_string(Lmax) + ")");
+        if (owner.size() <= static_cast<std::size_t>(s)) owner.resize(static_cast<std::size_t>(s) + 1, 0);
+        std::int64_t& o = owner[static_cast<std::size_t>(s)];
+        if (o != 0)
+          cx.fail(*sn, key + ".sites",
+                  "site " + std::to_string(s) + " is already set by " + P + ".initial[" + std::to_string(o - 1) + "]");
+        o = static_cast<std::int64_t>(i) + 1;
+      }
+      std::string gkind = "vacuum";
+      if (const toml::node* g = b.get("gaussian")) {
+        gkind = cx.string(*g, key + ".gaussian");
+        if (gkind != "vacuum" && gkind != "squeezed")
+          cx.fail(*g, key + ".gaussian", "\"" + gkind + "\" is not one of \"vacuum\", \"squeezed\"");
+      }
+      const toml::node* sq = b.get("squeeze");
+      if (gkind == "squeezed") {
+        if (!sq) cx.fail(blk.line, key, "gaussian = \"squeezed\" needs 'squeeze' (s > 0, e.g. \"3/2\" or 2)");
+        std::int64_t num = 0, den = 1;
+        if (sq->is_integer()) {
+          num = sq->as_integer()->get();
+        } else if (sq->is_string()) {
+          if (!parse_rational(sq->as_string()->get(), num, den))
+            cx.fail(*sq, key + ".squeeze",
+                    "\"" + sq->as_string()->get() + "\" is not a rational p/q of integers (e.g. \"3/2\")");
+        } else {
+          cx.fail(*sq, key + ".squeeze",
+                  std::string("must be a rational string like \"3/2\" or an integer, not ") + Loc::type_name(*sq) +
+                      " (exact arithmetic: no floats)");
+        }
+        if (num <= 0) cx.fail(*sq, key + ".squeeze", "the squeezing s must be > 0");
+        const std::int64_t g = std::gcd(num, den);
+        blk.gaussian.squeezed = true;
+        blk.gaussian.num = num / g;
+        blk.gaussian.den = den / g;
+      } else if (sq) {
+        cx.fail(*sq, key + ".squeeze", "given but gaussian is not \"squeezed\"");
+      }
+      if (const toml::node* sb = b.get("stabilizer")) {
+        if (sb->is_string()) {
+          const std::string k = sb->as_string()->get();
+          if (k == "position")
+            blk.stabilizer = StabilizerSite::position();
+          else if (k == "momentum")
+            blk.stabilizer = StabilizerSite::momentum();
+          else
+            cx.fail(*sb, key + ".stabilizer", "\"" + k + "\" is not one of \"position\", \"momentum\" or [a, b]");
+        } else if (sb->is_array()) {
+          const auto& ab = *sb->as_array();
+          if (ab.size() != 2)
+            cx.fail(*sb, key + ".stabilizer", "a line must be [a, b]: the generator X^a Z^b (two integers)");
+          blk.stabilizer = StabilizerSite::line(cx.integer(ab[0], key + ".stabilizer"),
+                                                cx.integer(ab[1], key + ".stabilizer"));
+          for (std::int64_t N : e.stabilizer_dims) {
+            std::string why;
+            if (!stabilizer_site_valid(N, blk.stabilizer, why))
+              cx.fail(*sb, key + ".stabilizer", "not a valid state for N = " + std::to_string(N) + ": " + why);
+          }
+        } else {
+          cx.fail(*sb, key + ".stabilizer",
+                  std::string("must be \"position\", \"momentum\" or [a, b], not ") + Loc::type_name(*sb));
+        }
+      }
+      e.initial.push_back(std::move(blk));
+    }
+  }
+  return e;
+}
+
+EntanglementAxes entanglement_axes(const Config& c) {
+  EntanglementAxes a;
+  const EntanglementSpec& e = c.entanglement;
+  if (!e.enabled) return a;
+  a.present = true;
+  a.periods = e.periods;
+  std::size_t width = 0;
+  for (const auto& r : e.regions) {
+    a.region_size.push_back(static_cast<std::int64_t>(r.sites.size()));
+    width = std::max(width, r.sites.size());
+  }
+  a.region_sites.assign(e.regions.size() * width, -1);
+  for (std::size_t i = 0; i < e.regions.size(); ++i)
+    std::copy(e.regions[i].sites.begin(), e.regions[i].sites.end(),
+              a.region_sites.begin() + static_cast<std::ptrdiff_t>(i * width));
+  a.gaussian = e.gaussian;
+  a.local_dims = e.stabilizer_dims;
+  if (e.profile) {
+    a.profile_stride = e.profile_stride;
+    a.profile_sites = max_sites(c) + 1;
+  }
+  return a;
+}
+
+// ---------------------------------------------------------------- pieces
+
+std::vector<GaussianSite> gaussian_initial(const EntanglementSpec& e, std::int64_t L) {
+  std::vector<GaussianSite> v(static_cast<std::size_t>(L));
+  for (const auto& b : e.initial)
+    for (std::int64_t s : b.sites)
+      if (s < L) v[static_cast<std::size_t>(s)] = b.gaussian;
+  return v;
+}
+
+std::vector<StabilizerSite> stabilizer_initial(const EntanglementSpec& e, std::int64_t L) {
+  std::vector<StabilizerSite> v(static_cast<std::size_t>(L), StabilizerSite::position());
+  for (const auto& b : e.initial)
+    for (std::int64_t s : b.sites)
+      if (s < L) v[static_cast<std::size_t>(s)] = b.stabilizer;
+  return v;
+}
+
+std::int64_t boundary_cuts(const std::vector<std::int64_t>& sites, std::int64_t L, Boundary b) {
+  std::vector<char> in(static_cast<std::size_t>(L), 0);
+  for (std::int64_t s : sites) in[static_cast<std::size_t>(s)] = 1;
+  const std::int64_t bonds = b == Boundary::Periodic ? L : L - 1;
+  std::int64_t c = 0;
+  for (std::int64_t k = 0; k < bonds; ++k)
+    c += in[static_cast<std::size_t>(k)] != in[static_cast<std::size_t>((k + 1) % L)];
+  return c;
+}
+
+CurveSummary summarize_curve(const double* S, std::size_t n) {
+  CurveSummary out;
+  if (n == 0) return out;
+  const std::size_t T = n - 1;
+  out.saturation_value = *std::max_element(S, S + n);
+  const double level = kSaturationFraction * out.saturation_value;
+  for (std::size_t t = 0; t < n; ++t)
+    if (S[t] >= level) {
+      out.saturation_time = static_cast<double>(t);
+      break;
+    }
+  if (T >= 1) {
+    const std::size_t t0 = std::min((3 * T + 3) / 4, T - 1);  // ceil(3T/4), at least two points
+    const double m = static_cast<double>(T - t0 + 1);
+    double tbar = 0, sbar = 0;
+    for (std::size_t t = t0; t <= T; ++t) {
+      tbar += static_cast<double>(t);
+      sbar += S[t];
+    }
+    tbar /= m;
+    sbar /= m;
+    double num = 0, den = 0;
+    for (std::size_t t = t0; t <= T; ++t) {
+      const double dt = static_cast<double>(t) - tbar;
+      num += dt * (S[t] - sbar);
+      den += dt * dt;
+    }
+    out.slope = num / den;
+  }
+  return out;
+}
+
+std::int64_t bound_violations(const double* S, std::size_t n, double cap, double rate, double tol) {
+  std::int64_t v = 0;
+  for (std::size_t t = 0; t < n; ++t)
+    v += S[t] > cap + tol || S[t] - S[0] > rate * static_cast<double>(t) + tol;
+  return v;
+}
+
+// ---------------------------------------------------------------- per point
+
+void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
+  const EntanglementSpec& E = c.entanglement;
+  if (!E.enabled) return;
+  const auto t0 = std::chrono::steady_clock::now();
+  const std::size_t nr = E.regions.size(), nt = static_cast<std::size_t>(E.periods) + 1;
+  const std::size_t nn = E.stabilizer_dims.size();
+  r.ent_cuts.assign(nr, -1);
+  r.ent_lyapunov_rate.assign(nr, kNaN);
+  if (E.gaussian) {
+    r.gauss_entropy.assign(nr * nt, kNaN);
+    r.gauss_radius.assign(nr * nt, kNaN);
+    r.gauss_failures.assign(nr, -1);
+    for (auto* v : {&r.gauss_slope, &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time})
+      v->assign(nr, kNaN);
+  }
+  if (nn > 0) {
+    r.stab_entropy.assign(nn * nr * nt, kNaN);
+    for (auto* v : {&r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
+                    &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate})
+      v->assign(nn * nr, kNaN);
+    r.stab_violations.assign(nn * nr, -1);
+  }
+  auto finish = [&] {
+    r.ent_wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  };
+  auto note = [&](const std::string& what) {
+    if (r.status != static_cast<std::int32_t>(PointStatus::Ok)) return;  // keep the first failure
+    r.status = static_cast<std::int32_t>(PointStatus::EntanglementFailed);
+    r.message = "entanglement: " + what;
+  };
+  Circuit circ;
+  try {
+    const GateSource gs = gate_source(c, p);
+    if (!gs.time_periodic) {  // the kernels take one time-periodic circuit: NaN curves (docs)
+      finish();
+      return;
+    }
+    circ = materialize(gs);
+    circ.validate();
+  } catch (const std::exception& ex) {
+    note(ex.what());
+    finish();
+    return;
+  }
+  const std::int64_t L = circ.L;
+  std::vector<char> fits(nr, 0);
+  for (std::size_t k = 0; k < nr; ++k) {
+    const auto& sites = E.regions[k].sites;
+    if (sites.back() >= L) continue;  // does not fit this lattice: NaN / -1
+    fits[k] = 1;
+    r.ent_cuts[k] = boundary_cuts(sites, L, circ.boundary);
+    r.ent_lyapunov_rate[k] = lyapunov_rate(r.exponents, L, static_cast<std::int64_t>(sites.size()));
+  }
+
+  if (E.gaussian) {
+    const std::vector<GaussianSite> init = gaussian_initial(E, L);
+    for (std::size_t k = 0; k < nr; ++k) {
+      if (!fits[k]) continue;
+      try {
+        const EntropyCurve cv = gaussian_entropy_curve(circ, init, E.regions[k].sites, E.periods);
+        std::copy(cv.entropy.begin(), cv.entropy.end(), r.gauss_entropy.begin() + static_cast<std::ptrdiff_t>(k * nt));
+        std::copy(cv.radius.begin(), cv.radius.end(), r.gauss_radius.begin() + static_cast<std::ptrdiff_t>(k * nt));
+        r.gauss_failures[k] = cv.failures;
+        const CurveSummary s = summarize_curve(cv.entropy.data(), nt);
+        r.gauss_slope[k] = s.slope;
+        r.gauss_slope_over_lyapunov[k] = s.slope / r.ent_lyapunov_rate[k];
+        r.gauss_saturation_value[k] = s.saturation_value;
+        r.gauss_saturation_time[k] = s.saturation_time;
+        if (cv.failures > 0) {
+          const double worst = *std::max_element(cv.radius.begin(), cv.radius.end());
+          std::ostringstream os;
+          os << "gaussian region " << k << ": " << cv.failures << " of " << nt
+             << " times missed the certified radius target 1e-12 (largest radius " << std::setprecision(3) << worst
+             << ")";
+          note(os.str());
+        }
+      } catch (const std::exception& ex) {
+        note("gaussian region " + std::to_string(k) + ": " + ex.what());
+      }
+    }
+  }
+
+  if (nn > 0) {
+    const std::vector<StabilizerSite> init = stabilizer_initial(E, L);
+    for (std::size_t j = 0; j < nn; ++j) {
+      const std::int64_t N = E.stabilizer_dims[j];
+      const double lnN = std::log(static_cast<double>(N));
+      for (std::size_t k = 0; k < nr; ++k) {
+        if (!fits[k]) continue;
+        const std::size_t q = j * nr + k;
+        const std::int64_t A = static_cast<std::int64_t>(E.regions[k].sites.size());
+        const double cap = static_cast<double>(std::min(A, L - A)) * lnN;
+        const double rate = 2.0 * static_cast<double>(r.ent_cuts[k]) * lnN;
+        r.stab_cap[q] = cap;
+        r.stab_lightcone_rate[q] = rate;
+        try {
+          const std::vector<double> S = stabilizer_entropy_curve(circ, N, init, E.regions[k].sites, E.periods);
+          std::copy(S.begin(), S.end(), r.stab_entropy.begin() + static_cast<std::ptrdiff_t>(q * nt));
+          const CurveSummary s = summarize_curve(S.data(), nt);
+          r.stab_slope[q] = s.slope;
+          r.stab_slope_over_lyapunov[q] = s.slope / r.ent_lyapunov_rate[k];
+          r.stab_slope_over_lightcone[q] = s.slope / rate;
+          r.stab_saturation_value[q] = s.saturation_value;
+          r.stab_saturation_time[q] = s.saturation_time;
+          r.stab_violations[q] = bound_violations(S.data(), nt, cap, rate, kViolationTolerance);
+          if (r.stab_violations[q] > 0)
+            note("stabilizer N = " + std::to_string(N) + " region " + std::to_string(k) + ": " +
+                 std::to_string(r.stab_violations[q]) + " times above the Hilbert cap or the light cone (a bug)");
+        } catch (const std::exception& ex) {
+          note("stabilizer N = " + std::to_string(N) + " region " + std::to_string(k) + ": " + ex.what());
+        }
+      }
+    }
+    if (E.profile) {
+      const std::size_t nk = static_cast<std::size_t>(E.periods / E.profile_stride) + 1;
+      const std::size_t w = static_cast<std::size_t>(L) + 1;
+      r.stab_profile.assign(nn * nk * w, kNaN);
+      for (std::size_t j = 0; j < nn; ++j) {
+        try {
+          const auto prof = stabilizer_profile(circ, E.stabilizer_dims[j], init, E.periods, E.profile_stride);
+          for (std::size_t k = 0; k < nk && k < prof.size(); ++k)
+            std::copy_n(prof[k].begin(), std::min(w, prof[k].size()),
+                        r.stab_profile.begin() + static_cast<std::ptrdiff_t>((j * nk + k) * w));
+        } catch (const std::exception& ex) {
+          note("stabilizer profile N = " + std::to_string(E.stabilizer_dims[j]) + ": " + ex.what());
+        }
+      }
+    }
+  }
+  finish();
+}
+
+// ---------------------------------------------------------------- output
+
+namespace {
+
+std::string jnum(double x) {
+  if (!std::isfinite(x)) return "null";
+  std::ostringstream os;
+  os << std::setprecision(17) << x;
+  return os.str();
+}
+std::string jarr(const std::vector<double>& v) {
+  std::string o = "[";
+  for (std::size_t i = 0; i < v.size(); ++i) o += (i ? ", " : "") + jnum(v[i]);
+  return o + "]";
+}
+std::string jarr(const std::vector<std::int64_t>& v) {
+  std::string o = "[";
+  for (std::size_t i = 0; i < v.size(); ++i) o += (i ? ", " : "") + std::to_string(v[i]);
+  return o + "]";
+}
+std::string txt(double x, int prec = 6) {
+  if (std::isnan(x)) return "nan";
+  if (std::isinf(x)) return x > 0 ? "inf" : "-inf";
+  std::ostringstream os;
+  os << std::setprecision(prec) << x;
+  return os.str();
+}
+double at(const std::vector<double>& v, std::size_t i) { return i < v.size() ? v[i] : kNaN; }
+std::int64_t iat(const std::vector<std::int64_t>& v, std::size_t i) { return i < v.size() ? v[i] : -1; }
+
+}  // namespace
+
+void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r, bool json) {
+  const EntanglementSpec& E = c.entanglement;
+  if (!E.enabled) return;
+  const EntanglementAxes ax = entanglement_axes(c);
+  const std::size_t nr = E.regions.size();
+  if (json) {
+    std::vector<std::int64_t> t(ax.times());
+    std::iota(t.begin(), t.end(), std::int64_t{0});
+    std::string sites = "[";
+    for (std::size_t k = 0; k < nr; ++k) sites += (k ? ", " : "") + jarr(E.regions[k].sites);
+    sites += "]";
+    auto m = [&](const char* path, const std::string& value) { os << ",\n  \"" << path << "\": " << value; };
+    m("/entanglement/t", jarr(t));
+    m("/entanglement/region_size", jarr(ax.region_size));
+    m("/entanglement/region_sites", sites);
+    m("/entanglement/wall_time", jnum(r.ent_wall_time));
+    m("/entanglement/cuts", jarr(r.ent_cuts));
+    m("/entanglement/lyapunov_rate", jarr(r.ent_lyapunov_rate));
+    if (E.gaussian) {
+      m("/entanglement/gaussian/entropy", jarr(r.gauss_entropy));
+      m("/entanglement/gaussian/radius", jarr(r.gauss_radius));
+      m("/entanglement/gaussian/failures", jarr(r.gauss_failures));
+      m("/entanglement/gaussian/slope", jarr(r.gauss_slope));
+      m("/entanglement/gaussian/slope_over_lyapunov", jarr(r.gauss_slope_over_lyapunov));
+      m("/entanglement/gaussian/saturation_value", jarr(r.gauss_saturation_value));
+      m("/entanglement/gaussian/saturation_time", jarr(r.gauss_saturation_time));
+    }
+    if (!E.stabilizer_dims.empty()) {
+      m("/entanglement/stabilizer/local_dim", jarr(E.stabilizer_dims));
+      m("/entanglement/stabilizer/entropy", jarr(r.stab_entropy));
+      m("/entanglement/stabilizer/slope", jarr(r.stab_slope));
+      m("/entanglement/stabilizer/slope_over_lyapunov", jarr(r.stab_slope_over_lyapunov));
+      m("/entanglement/stabilizer/slope_over_lightcone", jarr(r.stab_slope_over_lightcone));
+      m("/entanglement/stabilizer/saturation_value", jarr(r.stab_saturation_value));
+      m("/entanglement/stabilizer/saturation_time", jarr(r.stab_saturation_time));
+      m("/entanglement/stabilizer/cap", jarr(r.stab_cap));
+      m("/entanglement/stabilizer/lightcone_rate", jarr(r.stab_lightcone_rate));
+      m("/entanglement/stabilizer/violations", jarr(r.stab_violations));
+      if (E.profile) {
+        std::vector<std::int64_t> tk(ax.profile_times());
+        for (std::size_t k = 0; k < tk.size(); ++k) tk[k] = static_cast<std::int64_t>(k) * E.profile_stride;
+        m("/entanglement/stabilizer/profile_t", jarr(tk));
+        m("/entanglement/stabilizer/profile", jarr(r.stab_profile));
+      }
+    }
+    return;
+  }
+  os << "  exact entanglement, t = 0.." << E.periods << " (" << txt(r.ent_wall_time, 3) << " s; slope over the last"
+     << " quarter, sat. = first t at 99% of the max):\n";
+  if (E.gaussian) {
+    os << "    gaussian " << std::setw(8) << "|A|" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_|A|"
+       << std::setw(12) << "slope" << std::setw(10) << "/Lambda" << std::setw(12) << "S(T)" << std::setw(8) << "sat.t"
+       << std::setw(12) << "max radius" << "\n";
+    for (std::size_t k = 0; k < nr; ++k) {
+      const std::size_t nt = ax.times();
+      double rad = kNaN;
+      for (std::size_t t = 0; t < nt; ++t) {
+        const double x = at(r.gauss_radius, k * nt + t);
+        if (!std::isnan(x)) rad = std::isnan(rad) ? x : std::max(rad, x);
+      }
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
+         << std::setw(12) << txt(at(r.ent_lyapunov_rate, k)) << std::setw(12) << txt(at(r.gauss_slope, k))
+         << std::setw(10) << txt(at(r.gauss_slope_over_lyapunov, k), 4) << std::setw(12)
+         << txt(at(r.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << txt(at(r.gauss_saturation_time, k))
+         << std::setw(12) << txt(rad, 2) << "\n";
+    }
+  }
+  for (std::size_t j = 0; j < E.stabilizer_dims.size(); ++j) {
+    os << "    N = " << std::setw(3) << E.stabilizer_dims[j] << std::setw(7) << "|A|" << std::setw(6) << "cuts"
+       << std::setw(12) << "slope" << std::setw(10) << "/Lambda" << std::setw(10) << "/l.cone" << std::setw(12)
+       << "sat.value" << std::setw(8) << "sat.t" << std::setw(10) << "cap" << std::setw(6) << "viol." << "\n";
+    for (std::size_t k = 0; k < nr; ++k) {
+      const std::size_t q = j * nr + k;
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
+         << std::setw(12) << txt(at(r.stab_slope, q)) << std::setw(10) << txt(at(r.stab_slope_over_lyapunov, q), 4)
+         << std::setw(10) << txt(at(r.stab_slope_over_lightcone, q), 4) << std::setw(12)
+         << txt(at(r.stab_saturation_value, q)) << std::setw(8) << txt(at(r.stab_saturation_time, q))
+         << std::setw(10) << txt(at(r.stab_cap, q), 5) << std::setw(6) << iat(r.stab_violations, q) << "\n";
+    }
+  }
+}
+
+}  // namespace toral

@@ -1,0 +1,96 @@
+// Exact entanglement dynamics of a sweep point, end to end: the optional
+// [entanglement] config table, the per-point computation with the exact
+// kernels (kernels/gaussian_exact.hpp, kernels/stabilizer.hpp), the
+// comparison with the bounds, and the human / JSON output of `toral point`.
+// docs/entanglement.md is the reference; the file layout is docs/layout.md.
+//
+// Included by config.hpp (Config holds an EntanglementSpec), so this header
+// must not include config.hpp or sweep.hpp: Config and Point are only
+// declared here.
+#pragma once
+#include <cstdint>
+#include <ostream>
+#include <string>
+#include <vector>
+
+#include "gaussian_exact.hpp"
+#include "model.hpp"
+#include "record.hpp"
+#include "stabilizer.hpp"
+
+namespace toral {
+
+struct Config;
+struct Point;
+
+// One region A: a fixed set of sites, ascending and distinct.
+struct EntanglementRegion {
+  std::vector<std::int64_t> sites;
+  bool block = false;      // written as an integer ell: sites offset .. offset + ell - 1
+  std::int64_t line = 0;   // where it was given
+};
+
+// One [[entanglement.initial]] block: the local state of `sites`.
+struct EntanglementInitial {
+  std::vector<std::int64_t> sites;
+  GaussianSite gaussian;     // vacuum, or squeezed with s = num / den > 0
+  StabilizerSite stabilizer; // position, momentum or a line X^a Z^b
+  std::int64_t line = 0;
+};
+
+struct EntanglementSpec {
+  bool enabled = false;        // the table is present
+  std::int64_t periods = 0;    // T: curves at t = 0..T
+  std::int64_t offset = 0;     // first site of the integer (block) regions
+  std::vector<EntanglementRegion> regions;
+  bool gaussian = true;        // certified Gaussian entropies on R^{2L}
+  std::vector<std::int64_t> stabilizer_dims;  // N of the stabilizer entropies (Z_N qudits)
+  bool profile = false;        // stabilizer all-cuts profile S([0, x)), x = 0..L, per N
+  std::int64_t profile_stride = 1;
+  std::vector<EntanglementInitial> initial;   // sites not covered: vacuum / position
+};
+
+// Reads the optional [entanglement] table of `text` (which parse_config has
+// already parsed successfully into `c`, sweeps included). Absent: a spec with
+// enabled = false. Throws ConfigError "SOURCE:LINE: entanglement.key: what"
+// (one line) for every bad key or value, and for a region or initial site
+// that no lattice of the run can hold.
+EntanglementSpec parse_entanglement(const std::string& text, const std::string& source, const Config& c);
+
+// The /entanglement coordinates of a run (present = false without the table).
+EntanglementAxes entanglement_axes(const Config& c);
+
+// Fills the /entanglement fields of `r` for point `p` (nothing without the
+// table). Never throws: a kernel failure, or a Gaussian radius that misses its
+// target, turns an ok status into EntanglementFailed with a message; the
+// other curves are still computed. Uses r.exponents (for Lambda_|A|), so it
+// runs after the spectrum. Points whose gates are redrawn every period get
+// NaN curves (the kernels take one time-periodic circuit).
+void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
+
+// `toral point`: the /entanglement values of `r` as JSON members (each
+// starting with ",\n  ", to follow the existing members), or a short table.
+void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r, bool json);
+
+// ---- pieces, exposed for tests
+
+// Per-site initial states of an L-site lattice from the spec.
+std::vector<GaussianSite> gaussian_initial(const EntanglementSpec& e, std::int64_t L);
+std::vector<StabilizerSite> stabilizer_initial(const EntanglementSpec& e, std::int64_t L);
+
+// Bonds of the brick-wall with exactly one end in `sites` (bond b joins b and
+// b + 1 mod L; L bonds on a ring, L - 1 on an open chain).
+std::int64_t boundary_cuts(const std::vector<std::int64_t>& sites, std::int64_t L, Boundary b);
+
+// Late-time slope, saturation value and time of a curve S(t), t = 0..T:
+// slope by least squares over t = t0..T, t0 = min(ceil(3T/4), T - 1) (NaN for
+// T = 0); value = max_t S(t); time = first t with S(t) >= 0.99 value.
+struct CurveSummary {
+  double slope = kNaN, saturation_value = kNaN, saturation_time = kNaN;
+};
+CurveSummary summarize_curve(const double* S, std::size_t n);
+
+// Number of t with S(t) > cap + tol or S(t) - S(0) > rate * t + tol.
+std::int64_t bound_violations(const double* S, std::size_t n, double cap, double rate, double tol = 1e-9);
+
+}  // namespace toral

@@ -1,0 +1,28 @@
+// Template part of petsc_util.hpp (included from there only).
+#pragma once
+#include <exception>
+
+#include "model.hpp"
+
+namespace toral {
+
+template <class F>
+void collective_phase(MPI_Comm comm, F&& f) {
+  int kind = 0;
+  std::string msg;
+  try {
+    f();
+  } catch (const ModelError& e) {
+    kind = 1;
+    msg = e.what();
+  } catch (const OverflowError& e) {
+    kind = 2;
+    msg = e.what();
+  } catch (const std::exception& e) {
+    kind = 3;
+    msg = e.what();
+  }
+  agree_on_error(comm, kind, msg);
+}
+
+}  // namespace toral

@@ -1,0 +1,132 @@
+"""Distributed methods end to end: krylov and tangent against dense and
+bloch where sizes overlap, rank groups, forced failures, time-random
+circuits, the 32-bit index limit and PETSc option pass-through."""
+import json
+
+import h5py
+import numpy as np
+import pytest
+
+BASE = """
+[[sweep]]
+name = "dis"
+sites = [240]
+boundary = "open"
+seeds = [3, 4]
+[sweep.bond]
+family = "shear2"
+a = {{ draw = [-2, 2] }}
+b = {{ draw = [1, 2] }}
+
+[spectrum]
+method = "{method}"
+top = 8
+[spectrum.krylov]
+count = 8
+{krylov}
+[spectrum.tangent]
+count = 4
+periods = 4000
+transient = 200
+windows = 20
+"""
+
+
+def run(tmp_path, run_toral, name, text, ranks=None, extra=()):
+    cfg = tmp_path / f"{name}.toml"
+    cfg.write_text(text)
+    out = tmp_path / f"{name}.h5"
+    p = run_toral("run", cfg, "-o", out, "-q", *extra, ranks=ranks)
+    assert p.returncode == 0, p.stderr
+    with h5py.File(out) as f:
+        return {k: f[k][()] for k in ("chaos/exponents", "chaos/exponent_error", "chaos/lambda_max", "points/status",
+                                      "points/message", "chaos/solver/method", "chaos/solver/residual",
+                                      "chaos/solver/ranks", "chaos/solver/cluster_count", "points/method")}, p
+
+
+def test_krylov_matches_dense_top(tmp_path, run_toral):
+    # dense LAPACK (dgeevx) is the reference where sizes overlap; 1e-9 as asked
+    dense, _ = run(tmp_path, run_toral, "d", BASE.format(method="dense", krylov=""))
+    kry, _ = run(tmp_path, run_toral, "k", BASE.format(method="krylov", krylov=""))
+    assert np.all(kry["points/status"] == 0), kry["points/message"]
+    assert np.all(kry["chaos/solver/method"] >= 3)
+    np.testing.assert_allclose(kry["chaos/exponents"][:, :8], dense["chaos/exponents"][:, :8], atol=1e-9, rtol=0)
+    assert np.all(kry["chaos/solver/residual"] < 1e-10)
+
+
+def test_tangent_matches_dense_within_its_error(tmp_path, run_toral):
+    dense, _ = run(tmp_path, run_toral, "d", BASE.format(method="dense", krylov=""))
+    tan, _ = run(tmp_path, run_toral, "t", BASE.format(method="tangent", krylov=""))
+    assert np.all(tan["points/status"] == 0), tan["points/message"]
+    err = tan["chaos/exponent_error"][:, :4]
+    diff = np.abs(tan["chaos/exponents"][:, :4] - dense["chaos/exponents"][:, :4])
+    # within 5 standard errors of the window means (common practice), and the estimate is not absurd
+    assert np.all(diff <= 5 * err + 1e-12), (diff, err)
+    assert np.all(err < 0.05)
+
+
+def test_rank_groups_do_not_change_results(tmp_path, run_toral):
+    one, _ = run(tmp_path, run_toral, "g1", BASE.format(method="krylov", krylov="ranks_per_point = 1"), ranks=2)
+    two, _ = run(tmp_path, run_toral, "g2", BASE.format(method="krylov", krylov="ranks_per_point = 2"), ranks=2)
+    assert np.all(one["chaos/solver/ranks"] == 1) and np.all(two["chaos/solver/ranks"] == 2)
+    np.testing.assert_allclose(one["chaos/exponents"], two["chaos/exponents"], atol=1e-9, rtol=0)
+
+
+def test_clean_open_chain_reports_its_cluster(tmp_path, run_toral):
+    text = """
+[[sweep]]
+name = "clean"
+sites = 20000
+boundary = "open"
+[sweep.bond]
+matrix = [[2, 1], [1, 1]]
+[spectrum]
+method = "krylov"
+bulk_limit = true
+[spectrum.krylov]
+count = 6
+"""
+    res, _ = run(tmp_path, run_toral, "c", text)
+    assert res["points/status"][0] == 0, res["points/message"]
+    assert res["points/method"][0] == 3
+    # the top of a clean open chain is a band edge: several values within tolerance
+    assert res["chaos/solver/cluster_count"][0] >= 2
+
+
+def test_forced_failure_is_recorded_and_the_sweep_goes_on(tmp_path, run_toral):
+    text = BASE.format(method="krylov", krylov='policy = "largest"\nmax_restarts = 1\ntolerance = 1e-14') + """
+[[sweep]]
+name = "ok"
+sites = 16
+[sweep.bond]
+matrix = [[2, 1], [1, 1]]
+"""
+    text = text.replace('method = "krylov"', 'method = "auto"').replace("[240]", "[5000]")
+    res, p = run(tmp_path, run_toral, "f", text, ranks=2)
+    st = res["points/status"]
+    assert st[-1] == 0
+    assert np.all(st[:-1] == 3), res["points/message"]
+    assert all(b"krylov" in m or "krylov" in str(m) for m in res["points/message"][:-1])
+
+
+def test_time_random_circuit_goes_to_tangent(tmp_path, run_toral):
+    text = BASE.format(method="auto", krylov="").replace('boundary = "open"', 'boundary = "open"\ndisorder = "redrawn"')
+    res, _ = run(tmp_path, run_toral, "r", text)
+    assert np.all(res["points/status"] == 0), res["points/message"]
+    assert np.all(res["points/method"] == 4)
+    assert np.all(np.isfinite(res["chaos/exponents"][:, :4]))
+
+
+def test_index_limit_is_a_config_error(tmp_path, run_toral):
+    cfg = tmp_path / "big.toml"
+    cfg.write_text("[[sweep]]\nsites = 3000000000\nboundary = \"open\"\n[sweep.bond]\nmatrix = [[2,1],[1,1]]\n")
+    p = run_toral("check", cfg)
+    assert p.returncode == 2 and "2^31" in p.stderr and "big.toml:2" in p.stderr
+
+
+def test_petsc_options_pass_through(tmp_path, run_toral):
+    cfg = tmp_path / "k.toml"
+    cfg.write_text(BASE.format(method="krylov", krylov=""))
+    p = run_toral("run", cfg, "-o", tmp_path / "k.h5", "-q", "--", "-log_view")
+    assert p.returncode == 0, p.stderr
+    assert "PETSc" in p.stdout + p.stderr and "Summary" in p.stdout + p.stderr
