@@ -208,14 +208,18 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.hist_edges = cs.hist_edges;
       fill_bounds(r, c, circ.L, sp.exponents, cs.lambda_max, cs.ks_rate);
     }
-    if (c.spectrum.bulk_limit && circ.translation_invariant()) {
-      const BulkLimit bl = bulk_limit(circ, c.spectrum.summary.bins);
+    }
+    if (c.spectrum.bulk_limit && gs.translation_invariant && gs.time_periodic) {
+      // The bulk limit depends on the gates only: a two-site ring carries them.
+      GateSource cell = gs;
+      cell.L = 2;
+      cell.boundary = Boundary::Periodic;
+      const BulkLimit bl = bulk_limit(materialize(cell), c.spectrum.summary.bins);
       r.limit_lambda_max = bl.lambda_max;
       r.limit_ks_density = bl.ks_density;
       r.limit_accuracy = std::max(bl.accuracy, bl.hist_accuracy);
       r.limit_hist_counts = bl.hist_counts;
       r.limit_hist_edges = bl.hist_edges;
-    }
     }
   } catch (const OverflowError& e) {
     fail(PointStatus::Overflow, e.what());
