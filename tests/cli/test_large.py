@@ -91,6 +91,11 @@ count = 6
     assert res["points/method"][0] == 3
     # the top of a clean open chain is a band edge: several values within tolerance
     assert res["chaos/solver/cluster_count"][0] >= 2
+    # and it lies below the bulk band edge from the Bloch blocks (common practice: an open chain's spectrum
+    # fills the bulk band from inside)
+    with h5py.File(tmp_path / "c.h5") as f:
+        edge = f["limit/lambda_max"][0]
+    assert res["chaos/lambda_max"][0] <= edge + 1e-12 and edge - res["chaos/lambda_max"][0] < 1e-6
 
 
 def test_forced_failure_is_recorded_and_the_sweep_goes_on(tmp_path, run_toral):
