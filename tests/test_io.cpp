@@ -18,6 +18,7 @@
 #include <string>
 #include <vector>
 
+#include "record_expect.hpp"
 #include "h5.hpp"
 #include "result_file.hpp"
 
@@ -1115,11 +1116,7 @@ TEST(ResultFile, MetadataFromRankZero) {
 
 namespace {
 
-std::uint64_t bits(double x) {
-  std::uint64_t u;
-  std::memcpy(&u, &x, sizeof u);
-  return u;
-}
+using toral_test::bits;
 
 // What read_results gives back for record `r` stored in row `row`.
 PointRecord canonical(PointRecord r, std::int64_t row) {
@@ -1140,74 +1137,6 @@ PointRecord canonical(PointRecord r, std::int64_t row) {
   for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations})
     if (std::all_of(v->begin(), v->end(), [](std::int64_t x) { return x == -1; })) v->clear();
   return r;
-}
-
-// Field-by-field equality, doubles compared as raw bits.
-void expect_same_record(const PointRecord& a, const PointRecord& b, const std::string& where) {
-  SCOPED_TRACE(where);
-  auto d = [](double x, double y, const char* name) { EXPECT_EQ(bits(x), bits(y)) << name << ": " << x << " vs " << y; };
-  auto v = [](const std::vector<double>& x, const std::vector<double>& y, const char* name) {
-    ASSERT_EQ(x.size(), y.size()) << name;
-    for (std::size_t i = 0; i < x.size(); ++i) EXPECT_EQ(bits(x[i]), bits(y[i])) << name << "[" << i << "]";
-  };
-  EXPECT_EQ(a.index, b.index);
-  EXPECT_EQ(a.row, b.row);
-  EXPECT_EQ(a.params, b.params);
-  EXPECT_EQ(a.status, b.status);
-  EXPECT_EQ(a.message, b.message);
-  EXPECT_EQ(a.method, b.method);
-  d(a.wall_time, b.wall_time, "wall_time");
-  d(a.lambda_max, b.lambda_max, "lambda_max");
-  d(a.ks_rate, b.ks_rate, "ks_rate");
-  d(a.ks_density, b.ks_density, "ks_density");
-  EXPECT_EQ(a.unstable_count, b.unstable_count);
-  v(a.exponents, b.exponents, "exponents");
-  v(a.exponent_errors, b.exponent_errors, "exponent_errors");
-  d(a.pairing_defect, b.pairing_defect, "pairing_defect");
-  d(a.sum_defect, b.sum_defect, "sum_defect");
-  d(a.error_bound, b.error_bound, "error_bound");
-  EXPECT_EQ(a.solver, b.solver);
-  EXPECT_EQ(a.solver_converged, b.solver_converged);
-  EXPECT_EQ(a.solver_iterations, b.solver_iterations);
-  d(a.solver_residual, b.solver_residual, "solver_residual");
-  d(a.solver_time, b.solver_time, "solver_time");
-  EXPECT_EQ(a.solver_ranks, b.solver_ranks);
-  EXPECT_EQ(a.cluster_count, b.cluster_count);
-  d(a.cluster_spread, b.cluster_spread, "cluster_spread");
-  v(a.hist_counts, b.hist_counts, "hist_counts");
-  v(a.hist_edges, b.hist_edges, "hist_edges");
-  d(a.limit_lambda_max, b.limit_lambda_max, "limit_lambda_max");
-  d(a.limit_ks_density, b.limit_ks_density, "limit_ks_density");
-  d(a.limit_accuracy, b.limit_accuracy, "limit_accuracy");
-  v(a.limit_hist_counts, b.limit_hist_counts, "limit_hist_counts");
-  v(a.limit_hist_edges, b.limit_hist_edges, "limit_hist_edges");
-  EXPECT_EQ(a.cuts, b.cuts);
-  v(a.lyapunov_rate, b.lyapunov_rate, "lyapunov_rate");
-  v(a.hilbert_cap, b.hilbert_cap, "hilbert_cap");
-  v(a.lightcone_rate, b.lightcone_rate, "lightcone_rate");
-  v(a.ehrenfest_time, b.ehrenfest_time, "ehrenfest_time");
-  v(a.saturation_lyapunov, b.saturation_lyapunov, "saturation_lyapunov");
-  v(a.saturation_lightcone, b.saturation_lightcone, "saturation_lightcone");
-  d(a.ent_wall_time, b.ent_wall_time, "ent_wall_time");
-  EXPECT_EQ(a.ent_cuts, b.ent_cuts);
-  v(a.ent_lyapunov_rate, b.ent_lyapunov_rate, "ent_lyapunov_rate");
-  v(a.gauss_entropy, b.gauss_entropy, "gauss_entropy");
-  v(a.gauss_radius, b.gauss_radius, "gauss_radius");
-  EXPECT_EQ(a.gauss_failures, b.gauss_failures);
-  v(a.gauss_slope, b.gauss_slope, "gauss_slope");
-  v(a.gauss_slope_over_lyapunov, b.gauss_slope_over_lyapunov, "gauss_slope_over_lyapunov");
-  v(a.gauss_saturation_value, b.gauss_saturation_value, "gauss_saturation_value");
-  v(a.gauss_saturation_time, b.gauss_saturation_time, "gauss_saturation_time");
-  v(a.stab_entropy, b.stab_entropy, "stab_entropy");
-  v(a.stab_slope, b.stab_slope, "stab_slope");
-  v(a.stab_slope_over_lyapunov, b.stab_slope_over_lyapunov, "stab_slope_over_lyapunov");
-  v(a.stab_slope_over_lightcone, b.stab_slope_over_lightcone, "stab_slope_over_lightcone");
-  v(a.stab_saturation_value, b.stab_saturation_value, "stab_saturation_value");
-  v(a.stab_saturation_time, b.stab_saturation_time, "stab_saturation_time");
-  v(a.stab_cap, b.stab_cap, "stab_cap");
-  v(a.stab_lightcone_rate, b.stab_lightcone_rate, "stab_lightcone_rate");
-  EXPECT_EQ(a.stab_violations, b.stab_violations);
-  v(a.stab_profile, b.stab_profile, "stab_profile");
 }
 
 void expect_same_axes(const RunAxes& a, const RunAxes& b) {
@@ -1383,7 +1312,7 @@ TEST(ResultFile, ShardSubsetHasGlobalIndices) {
     expect_same_axes(d.axes, make_axes());
     ASSERT_EQ(d.records.size(), kShard.size());
     for (std::size_t j = 0; j < kShard.size(); ++j)
-      expect_same_record(d.records[j], canonical(make_record(kShard[j]), static_cast<std::int64_t>(j)),
+      toral_test::expect_identical_records(d.records[j], canonical(make_record(kShard[j]), static_cast<std::int64_t>(j)),
                          "row " + std::to_string(j));
     EXPECT_EQ(d.stats.groups(), 0);
   });
@@ -1411,7 +1340,7 @@ TEST(ResultFile, ReadResultsRoundTrip) {
           r.limit_hist_counts.clear();
           r.limit_hist_edges.clear();
         }
-        expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+        toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
       }
       // the long message comes back truncated, the partly-NaN errors whole
       EXPECT_EQ(d.records[kFailedLong].message.size(), 254u);
@@ -1488,7 +1417,7 @@ TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
                       &r.gauss_saturation_value, &r.gauss_saturation_time, &r.stab_profile})
         v->clear();
       r.gauss_failures.clear();
-      expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+      toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
     }
   });
 }
@@ -1706,7 +1635,7 @@ TEST(ResultFile, ReadResultsOfOlderLayout1File) {
       r.cluster_count = defaults.cluster_count;
       r.cluster_spread = defaults.cluster_spread;
       r = without_entanglement(r);
-      expect_same_record(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+      toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
     }
   });
 }

@@ -15,6 +15,7 @@
 #include <string>
 #include <vector>
 
+#include "record_expect.hpp"
 #include "journal.hpp"
 
 namespace fs = std::filesystem;
@@ -58,79 +59,8 @@ void spit(const std::string& p, const std::string& bytes) {
   o.write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
 }
 
-std::uint64_t bits(double x) { return std::bit_cast<std::uint64_t>(x); }
+using toral_test::bits;
 
-// Raw-bit equality of every field of PointRecord (doubles as bits, so NaN
-// payloads, signs of zero and NaN are compared too).
-void expect_identical(const PointRecord& a, const PointRecord& b, const std::string& where) {
-  SCOPED_TRACE(where);
-  auto d = [](double x, double y, const char* name) {
-    EXPECT_EQ(bits(x), bits(y)) << name << ": " << x << " vs " << y;
-  };
-  auto v = [](const std::vector<double>& x, const std::vector<double>& y, const char* name) {
-    ASSERT_EQ(x.size(), y.size()) << name;
-    for (std::size_t i = 0; i < x.size(); ++i)
-      EXPECT_EQ(bits(x[i]), bits(y[i])) << name << "[" << i << "]: " << x[i] << " vs " << y[i];
-  };
-  EXPECT_EQ(a.index, b.index);
-  EXPECT_EQ(a.row, b.row);
-  EXPECT_EQ(a.params, b.params);
-  EXPECT_EQ(a.status, b.status);
-  EXPECT_EQ(a.message, b.message);
-  EXPECT_EQ(a.method, b.method);
-  d(a.wall_time, b.wall_time, "wall_time");
-  d(a.lambda_max, b.lambda_max, "lambda_max");
-  d(a.ks_rate, b.ks_rate, "ks_rate");
-  d(a.ks_density, b.ks_density, "ks_density");
-  EXPECT_EQ(a.unstable_count, b.unstable_count);
-  v(a.exponents, b.exponents, "exponents");
-  v(a.exponent_errors, b.exponent_errors, "exponent_errors");
-  d(a.pairing_defect, b.pairing_defect, "pairing_defect");
-  d(a.sum_defect, b.sum_defect, "sum_defect");
-  d(a.error_bound, b.error_bound, "error_bound");
-  EXPECT_EQ(a.solver, b.solver);
-  EXPECT_EQ(a.solver_converged, b.solver_converged);
-  EXPECT_EQ(a.solver_iterations, b.solver_iterations);
-  d(a.solver_residual, b.solver_residual, "solver_residual");
-  d(a.solver_time, b.solver_time, "solver_time");
-  EXPECT_EQ(a.solver_ranks, b.solver_ranks);
-  EXPECT_EQ(a.cluster_count, b.cluster_count);
-  d(a.cluster_spread, b.cluster_spread, "cluster_spread");
-  v(a.hist_counts, b.hist_counts, "hist_counts");
-  v(a.hist_edges, b.hist_edges, "hist_edges");
-  d(a.limit_lambda_max, b.limit_lambda_max, "limit_lambda_max");
-  d(a.limit_ks_density, b.limit_ks_density, "limit_ks_density");
-  d(a.limit_accuracy, b.limit_accuracy, "limit_accuracy");
-  v(a.limit_hist_counts, b.limit_hist_counts, "limit_hist_counts");
-  v(a.limit_hist_edges, b.limit_hist_edges, "limit_hist_edges");
-  EXPECT_EQ(a.cuts, b.cuts);
-  v(a.lyapunov_rate, b.lyapunov_rate, "lyapunov_rate");
-  v(a.hilbert_cap, b.hilbert_cap, "hilbert_cap");
-  v(a.lightcone_rate, b.lightcone_rate, "lightcone_rate");
-  v(a.ehrenfest_time, b.ehrenfest_time, "ehrenfest_time");
-  v(a.saturation_lyapunov, b.saturation_lyapunov, "saturation_lyapunov");
-  v(a.saturation_lightcone, b.saturation_lightcone, "saturation_lightcone");
-  d(a.ent_wall_time, b.ent_wall_time, "ent_wall_time");
-  EXPECT_EQ(a.ent_cuts, b.ent_cuts);
-  v(a.ent_lyapunov_rate, b.ent_lyapunov_rate, "ent_lyapunov_rate");
-  v(a.gauss_entropy, b.gauss_entropy, "gauss_entropy");
-  v(a.gauss_radius, b.gauss_radius, "gauss_radius");
-  EXPECT_EQ(a.gauss_failures, b.gauss_failures);
-  v(a.gauss_slope, b.gauss_slope, "gauss_slope");
-  v(a.gauss_slope_over_lyapunov, b.gauss_slope_over_lyapunov, "gauss_slope_over_lyapunov");
-  v(a.gauss_saturation_value, b.gauss_saturation_value, "gauss_saturation_value");
-  v(a.gauss_saturation_time, b.gauss_saturation_time, "gauss_saturation_time");
-  v(a.stab_entropy, b.stab_entropy, "stab_entropy");
-  v(a.stab_slope, b.stab_slope, "stab_slope");
-  v(a.stab_slope_over_lyapunov, b.stab_slope_over_lyapunov, "stab_slope_over_lyapunov");
-  v(a.stab_slope_over_lightcone, b.stab_slope_over_lightcone, "stab_slope_over_lightcone");
-  v(a.stab_saturation_value, b.stab_saturation_value, "stab_saturation_value");
-  v(a.stab_saturation_time, b.stab_saturation_time, "stab_saturation_time");
-  v(a.stab_cap, b.stab_cap, "stab_cap");
-  v(a.stab_lightcone_rate, b.stab_lightcone_rate, "stab_lightcone_rate");
-  EXPECT_EQ(a.stab_violations, b.stab_violations);
-  v(a.stab_profile, b.stab_profile, "stab_profile");
-}
 
 // Awkward doubles: NaNs with payloads and signs, infinities, signed zeros,
 // denormals, extremes.
@@ -281,7 +211,7 @@ TEST(Journal, RoundTripManyRecordsBitExact) {
   EXPECT_EQ(c.valid_bytes, sizes.back());
   ASSERT_EQ(c.records.size(), static_cast<std::size_t>(n));
   for (std::int64_t i = 0; i < n; ++i)
-    expect_identical(c.records[static_cast<std::size_t>(i)], make_record(i), "record " + std::to_string(i));
+    toral_test::expect_identical_records(c.records[static_cast<std::size_t>(i)], make_record(i), "record " + std::to_string(i));
   // frame sizes are payload + 16
   for (std::int64_t i = 0; i < n; ++i)
     EXPECT_EQ(sizes[static_cast<std::size_t>(i) + 1] - sizes[static_cast<std::size_t>(i)],
@@ -300,17 +230,17 @@ TEST(Journal, DefaultRecordAndEmptyHash) {
   EXPECT_EQ(c.config_hash, "");
   EXPECT_EQ(c.total_points, 0);
   ASSERT_EQ(c.records.size(), 1u);
-  expect_identical(c.records[0], PointRecord{}, "default record");
+  toral_test::expect_identical_records(c.records[0], PointRecord{}, "default record");
   EXPECT_TRUE(std::isnan(c.records[0].lambda_max));
 }
 
 TEST(Journal, SerializeParseRejectsExtraOrMissingBytes) {
   const PointRecord r = make_record(7);
   const std::string b = encode_record(r);
-  expect_identical(decode_record(b), r, "decoded");
+  toral_test::expect_identical_records(decode_record(b), r, "decoded");
   PointRecord out;
   ASSERT_TRUE(try_decode_record(b, out));
-  expect_identical(out, r, "try_decoded");
+  toral_test::expect_identical_records(out, r, "try_decoded");
   EXPECT_FALSE(try_decode_record(b + "x", out));
   EXPECT_FALSE(try_decode_record(b.substr(0, b.size() - 1), out));
   EXPECT_FALSE(try_decode_record(std::string(), out));
@@ -344,7 +274,7 @@ TEST(Journal, TornTailAtEveryByteOfLastFrame) {
     }
     if (cut == last || cut == end - 1 || cut % 16 == 0) {
       for (std::int64_t i = 0; i + 1 < n; ++i)
-        expect_identical(c.records[static_cast<std::size_t>(i)], make_record(i),
+        toral_test::expect_identical_records(c.records[static_cast<std::size_t>(i)], make_record(i),
                          "cut " + std::to_string(cut) + " record " + std::to_string(i));
     }
   }
@@ -395,7 +325,7 @@ TEST(Journal, CorruptChecksumIsDetected) {
     spit(q, b);
     const auto c = read_journal(q);
     ASSERT_EQ(c.records.size(), 1u);
-    expect_identical(c.records[0], make_record(0), "record 0");
+    toral_test::expect_identical_records(c.records[0], make_record(0), "record 0");
     EXPECT_EQ(c.tail, JournalTail::Corrupt);
     EXPECT_EQ(c.valid_bytes, sizes[1]);
     EXPECT_EQ(c.dropped_bytes, sizes[4] - sizes[1]);
@@ -493,9 +423,9 @@ TEST(Journal, OpenAppendCutsTornTailAndContinues) {
   auto c = read_journal(p);
   EXPECT_EQ(c.tail, JournalTail::Clean);
   ASSERT_EQ(c.records.size(), 6u);
-  for (int i = 0; i < 4; ++i) expect_identical(c.records[static_cast<std::size_t>(i)], make_record(i), "old");
-  expect_identical(c.records[4], make_record(100), "new 100");
-  expect_identical(c.records[5], make_record(101), "new 101");
+  for (int i = 0; i < 4; ++i) toral_test::expect_identical_records(c.records[static_cast<std::size_t>(i)], make_record(i), "old");
+  toral_test::expect_identical_records(c.records[4], make_record(100), "new 100");
+  toral_test::expect_identical_records(c.records[5], make_record(101), "new 101");
   // a clean journal is appended to unchanged
   {
     JournalWriter w;
@@ -506,7 +436,7 @@ TEST(Journal, OpenAppendCutsTornTailAndContinues) {
   }  // destructor closes
   c = read_journal(p);
   ASSERT_EQ(c.records.size(), 7u);
-  expect_identical(c.records[6], make_record(102), "new 102");
+  toral_test::expect_identical_records(c.records[6], make_record(102), "new 102");
   // after a corrupt frame the rest is dropped too
   {
     std::string b = slurp(p);
@@ -521,7 +451,7 @@ TEST(Journal, OpenAppendCutsTornTailAndContinues) {
   }
   c = read_journal(p);
   ASSERT_EQ(c.records.size(), 3u);
-  expect_identical(c.records[2], make_record(103), "new 103");
+  toral_test::expect_identical_records(c.records[2], make_record(103), "new 103");
 }
 
 TEST(Journal, OpenNewReplacesAndMoves) {
@@ -541,7 +471,7 @@ TEST(Journal, OpenNewReplacesAndMoves) {
   EXPECT_EQ(c.config_hash, "other");
   EXPECT_EQ(c.total_points, 5);
   ASSERT_EQ(c.records.size(), 1u);
-  expect_identical(c.records[0], make_record(9), "record 9");
+  toral_test::expect_identical_records(c.records[0], make_record(9), "record 9");
   // no temporaries left next to it
   for (const auto& e : fs::directory_iterator(fs::path(p).parent_path()))
     EXPECT_EQ(e.path().filename().string().find(".new."), std::string::npos) << e.path();
