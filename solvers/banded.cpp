@@ -235,20 +235,7 @@ PetscErrorCode pc_setup(PC pc) {
 PetscErrorCode pc_apply(PC pc, Vec x, Vec y) {
   Banded<double>* s;
   PetscCall(PCShellGetContext(pc, &s));
-  const PetscScalar* xa;
-  PetscScalar* ya;
-  PetscCall(VecGetArrayRead(x, &xa));
-  PetscCall(VecGetArray(y, &ya));
-  try {
-    solve(*s, xa, ya);
-  } catch (const std::exception& e) {
-    VecRestoreArrayRead(x, &xa);
-    VecRestoreArray(y, &ya);
-    SETERRQ(PETSC_COMM_SELF, PETSC_ERR_LIB, "%s", e.what());
-  }
-  PetscCall(VecRestoreArrayRead(x, &xa));
-  PetscCall(VecRestoreArray(y, &ya));
-  return 0;
+  return with_local_arrays(x, y, [s](const PetscScalar* xa, PetscScalar* ya) { solve(*s, xa, ya); });
 }
 
 PetscErrorCode pc_destroy(PC pc) {
@@ -266,22 +253,11 @@ struct Quad {
 PetscErrorCode quad_mult(Mat S, Vec x, Vec y) {
   Quad* q;
   PetscCall(MatShellGetContext(S, &q));
-  const PetscScalar* xa;
-  PetscScalar* ya;
-  PetscCall(VecGetArrayRead(x, &xa));
-  PetscCall(VecGetArray(y, &ya));
-  try {
+  return with_local_arrays(x, y, [q](const PetscScalar* xa, PetscScalar* ya) {
     std::vector<cd> z(static_cast<std::size_t>(q->f.m));
     solve(q->f, xa, z.data());
     for (PetscInt i = 0; i < q->f.m; ++i) ya[i] = z[static_cast<std::size_t>(i)].imag() / q->im;
-  } catch (const std::exception& e) {  // never let an exception cross PETSc
-    VecRestoreArrayRead(x, &xa);
-    VecRestoreArray(y, &ya);
-    SETERRQ(PETSC_COMM_SELF, PETSC_ERR_LIB, "%s", e.what());
-  }
-  PetscCall(VecRestoreArrayRead(x, &xa));
-  PetscCall(VecRestoreArray(y, &ya));
-  return 0;
+  });
 }
 
 PetscErrorCode quad_destroy(Mat S) {

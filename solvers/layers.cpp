@@ -218,23 +218,12 @@ void apply_dispatch(LayerCtx& c, const double* x, double* y) {
 PetscErrorCode shell_mult(Mat S, Vec x, Vec y) {
   LayerCtx* c;
   PetscCall(MatShellGetContext(S, &c));
-  const PetscScalar* xa;
-  PetscScalar* ya;
-  PetscCall(VecGetArrayRead(x, &xa));
-  PetscCall(VecGetArray(y, &ya));
-  try {  // (nothing in there throws today; keep it so)
+  return with_local_arrays(x, y, [c](const PetscScalar* xa, PetscScalar* ya) {
     if (c->w == 1)
       apply_dispatch<2>(*c, xa, ya);
     else
       apply_dispatch<4>(*c, xa, ya);
-  } catch (const std::exception& e) {
-    VecRestoreArrayRead(x, &xa);
-    VecRestoreArray(y, &ya);
-    SETERRQ(PETSC_COMM_SELF, PETSC_ERR_LIB, "%s", e.what());
-  }
-  PetscCall(VecRestoreArrayRead(x, &xa));
-  PetscCall(VecRestoreArray(y, &ya));
-  return 0;
+  });
 }
 
 PetscErrorCode shell_destroy(Mat S) {

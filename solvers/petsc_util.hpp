@@ -76,6 +76,12 @@ void agree_on_error(MPI_Comm comm, int local_kind, const std::string& local_erro
 template <class F>
 void collective_phase(MPI_Comm comm, F&& f);
 
+// Runs f(const PetscScalar* x, PetscScalar* y) on the local arrays of x and
+// y and restores them on every path; an exception becomes a PETSc error, so
+// none ever crosses PETSc (for MatShell / PCShell callbacks).
+template <class F>
+PetscErrorCode with_local_arrays(Vec x, Vec y, F&& f);
+
 // True once SlepcInitialize has been called (and SlepcFinalize not yet).
 bool slepc_ready();
 

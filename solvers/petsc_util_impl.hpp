@@ -25,4 +25,22 @@ void collective_phase(MPI_Comm comm, F&& f) {
   agree_on_error(comm, kind, msg);
 }
 
+template <class F>
+PetscErrorCode with_local_arrays(Vec x, Vec y, F&& f) {
+  const PetscScalar* xa;
+  PetscScalar* ya;
+  PetscCall(VecGetArrayRead(x, &xa));
+  PetscCall(VecGetArray(y, &ya));
+  try {
+    f(xa, ya);
+  } catch (const std::exception& e) {
+    VecRestoreArrayRead(x, &xa);
+    VecRestoreArray(y, &ya);
+    SETERRQ(PETSC_COMM_SELF, PETSC_ERR_LIB, "%s", e.what());
+  }
+  PetscCall(VecRestoreArrayRead(x, &xa));
+  PetscCall(VecRestoreArray(y, &ya));
+  return 0;
+}
+
 }  // namespace toral
