@@ -1,6 +1,7 @@
 #include "entangle.hpp"
 
 #include "config_ctx.hpp"
+#include "text_format.hpp"
 
 #include <toml++/toml.h>
 
@@ -485,29 +486,6 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
 
 namespace {
 
-std::string jnum(double x) {
-  if (!std::isfinite(x)) return "null";
-  std::ostringstream os;
-  os << std::setprecision(17) << x;
-  return os.str();
-}
-std::string jarr(const std::vector<double>& v) {
-  std::string o = "[";
-  for (std::size_t i = 0; i < v.size(); ++i) o += (i ? ", " : "") + jnum(v[i]);
-  return o + "]";
-}
-std::string jarr(const std::vector<std::int64_t>& v) {
-  std::string o = "[";
-  for (std::size_t i = 0; i < v.size(); ++i) o += (i ? ", " : "") + std::to_string(v[i]);
-  return o + "]";
-}
-std::string txt(double x, int prec = 6) {
-  if (std::isnan(x)) return "nan";
-  if (std::isinf(x)) return x > 0 ? "inf" : "-inf";
-  std::ostringstream os;
-  os << std::setprecision(prec) << x;
-  return os.str();
-}
 double at(const std::vector<double>& v, std::size_t i) { return i < v.size() ? v[i] : kNaN; }
 std::int64_t iat(const std::vector<std::int64_t>& v, std::size_t i) { return i < v.size() ? v[i] : -1; }
 
@@ -522,45 +500,45 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
     std::vector<std::int64_t> t(ax.times());
     std::iota(t.begin(), t.end(), std::int64_t{0});
     std::string sites = "[";
-    for (std::size_t k = 0; k < nr; ++k) sites += (k ? ", " : "") + jarr(E.regions[k].sites);
+    for (std::size_t k = 0; k < nr; ++k) sites += (k ? ", " : "") + json_array(E.regions[k].sites);
     sites += "]";
     auto m = [&](const char* path, const std::string& value) { os << ",\n  \"" << path << "\": " << value; };
-    m("/entanglement/t", jarr(t));
-    m("/entanglement/region_size", jarr(ax.region_size));
+    m("/entanglement/t", json_array(t));
+    m("/entanglement/region_size", json_array(ax.region_size));
     m("/entanglement/region_sites", sites);
-    m("/entanglement/wall_time", jnum(r.ent_wall_time));
-    m("/entanglement/cuts", jarr(r.ent_cuts));
-    m("/entanglement/lyapunov_rate", jarr(r.ent_lyapunov_rate));
+    m("/entanglement/wall_time", json_num(r.ent_wall_time));
+    m("/entanglement/cuts", json_array(r.ent_cuts));
+    m("/entanglement/lyapunov_rate", json_array(r.ent_lyapunov_rate));
     if (E.gaussian) {
-      m("/entanglement/gaussian/entropy", jarr(r.gauss_entropy));
-      m("/entanglement/gaussian/radius", jarr(r.gauss_radius));
-      m("/entanglement/gaussian/failures", jarr(r.gauss_failures));
-      m("/entanglement/gaussian/slope", jarr(r.gauss_slope));
-      m("/entanglement/gaussian/slope_over_lyapunov", jarr(r.gauss_slope_over_lyapunov));
-      m("/entanglement/gaussian/saturation_value", jarr(r.gauss_saturation_value));
-      m("/entanglement/gaussian/saturation_time", jarr(r.gauss_saturation_time));
+      m("/entanglement/gaussian/entropy", json_array(r.gauss_entropy));
+      m("/entanglement/gaussian/radius", json_array(r.gauss_radius));
+      m("/entanglement/gaussian/failures", json_array(r.gauss_failures));
+      m("/entanglement/gaussian/slope", json_array(r.gauss_slope));
+      m("/entanglement/gaussian/slope_over_lyapunov", json_array(r.gauss_slope_over_lyapunov));
+      m("/entanglement/gaussian/saturation_value", json_array(r.gauss_saturation_value));
+      m("/entanglement/gaussian/saturation_time", json_array(r.gauss_saturation_time));
     }
     if (!E.stabilizer_dims.empty()) {
-      m("/entanglement/stabilizer/local_dim", jarr(E.stabilizer_dims));
-      m("/entanglement/stabilizer/entropy", jarr(r.stab_entropy));
-      m("/entanglement/stabilizer/slope", jarr(r.stab_slope));
-      m("/entanglement/stabilizer/slope_over_lyapunov", jarr(r.stab_slope_over_lyapunov));
-      m("/entanglement/stabilizer/slope_over_lightcone", jarr(r.stab_slope_over_lightcone));
-      m("/entanglement/stabilizer/saturation_value", jarr(r.stab_saturation_value));
-      m("/entanglement/stabilizer/saturation_time", jarr(r.stab_saturation_time));
-      m("/entanglement/stabilizer/cap", jarr(r.stab_cap));
-      m("/entanglement/stabilizer/lightcone_rate", jarr(r.stab_lightcone_rate));
-      m("/entanglement/stabilizer/violations", jarr(r.stab_violations));
+      m("/entanglement/stabilizer/local_dim", json_array(E.stabilizer_dims));
+      m("/entanglement/stabilizer/entropy", json_array(r.stab_entropy));
+      m("/entanglement/stabilizer/slope", json_array(r.stab_slope));
+      m("/entanglement/stabilizer/slope_over_lyapunov", json_array(r.stab_slope_over_lyapunov));
+      m("/entanglement/stabilizer/slope_over_lightcone", json_array(r.stab_slope_over_lightcone));
+      m("/entanglement/stabilizer/saturation_value", json_array(r.stab_saturation_value));
+      m("/entanglement/stabilizer/saturation_time", json_array(r.stab_saturation_time));
+      m("/entanglement/stabilizer/cap", json_array(r.stab_cap));
+      m("/entanglement/stabilizer/lightcone_rate", json_array(r.stab_lightcone_rate));
+      m("/entanglement/stabilizer/violations", json_array(r.stab_violations));
       if (E.profile) {
         std::vector<std::int64_t> tk(ax.profile_times());
         for (std::size_t k = 0; k < tk.size(); ++k) tk[k] = static_cast<std::int64_t>(k) * E.profile_stride;
-        m("/entanglement/stabilizer/profile_t", jarr(tk));
-        m("/entanglement/stabilizer/profile", jarr(r.stab_profile));
+        m("/entanglement/stabilizer/profile_t", json_array(tk));
+        m("/entanglement/stabilizer/profile", json_array(r.stab_profile));
       }
     }
     return;
   }
-  os << "  exact entanglement, t = 0.." << E.periods << " (" << txt(r.ent_wall_time, 3) << " s; slope over the last"
+  os << "  exact entanglement, t = 0.." << E.periods << " (" << num(r.ent_wall_time, 3) << " s; slope over the last"
      << " quarter, sat. = first t at 99% of the max):\n";
   if (E.gaussian) {
     os << "    gaussian " << std::setw(8) << "|A|" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_|A|"
@@ -574,10 +552,10 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
         if (!std::isnan(x)) rad = std::isnan(rad) ? x : std::max(rad, x);
       }
       os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << txt(at(r.ent_lyapunov_rate, k)) << std::setw(12) << txt(at(r.gauss_slope, k))
-         << std::setw(10) << txt(at(r.gauss_slope_over_lyapunov, k), 4) << std::setw(12)
-         << txt(at(r.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << txt(at(r.gauss_saturation_time, k))
-         << std::setw(12) << txt(rad, 2) << "\n";
+         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.gauss_slope, k))
+         << std::setw(10) << num(at(r.gauss_slope_over_lyapunov, k), 4) << std::setw(12)
+         << num(at(r.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << num(at(r.gauss_saturation_time, k))
+         << std::setw(12) << num(rad, 2) << "\n";
     }
   }
   for (std::size_t j = 0; j < E.stabilizer_dims.size(); ++j) {
@@ -587,10 +565,10 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
     for (std::size_t k = 0; k < nr; ++k) {
       const std::size_t q = j * nr + k;
       os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << txt(at(r.stab_slope, q)) << std::setw(10) << txt(at(r.stab_slope_over_lyapunov, q), 4)
-         << std::setw(10) << txt(at(r.stab_slope_over_lightcone, q), 4) << std::setw(12)
-         << txt(at(r.stab_saturation_value, q)) << std::setw(8) << txt(at(r.stab_saturation_time, q))
-         << std::setw(10) << txt(at(r.stab_cap, q), 5) << std::setw(6) << iat(r.stab_violations, q) << "\n";
+         << std::setw(12) << num(at(r.stab_slope, q)) << std::setw(10) << num(at(r.stab_slope_over_lyapunov, q), 4)
+         << std::setw(10) << num(at(r.stab_slope_over_lightcone, q), 4) << std::setw(12)
+         << num(at(r.stab_saturation_value, q)) << std::setw(8) << num(at(r.stab_saturation_time, q))
+         << std::setw(10) << num(at(r.stab_cap, q), 5) << std::setw(6) << iat(r.stab_violations, q) << "\n";
     }
   }
 }

@@ -12,50 +12,9 @@
 
 #include "bloch.hpp"
 #include "compute.hpp"
+#include "text_format.hpp"
 
 namespace toral {
-
-namespace {
-
-std::string num(double x, int prec = 6) {
-  if (std::isnan(x)) return "nan";
-  if (std::isinf(x)) return x > 0 ? "inf" : "-inf";
-  std::ostringstream os;
-  os << std::setprecision(prec) << x;
-  return os.str();
-}
-
-std::string json_num(double x) {
-  if (!std::isfinite(x)) return "null";
-  std::ostringstream os;
-  os << std::setprecision(17) << x;
-  return os.str();
-}
-
-std::string json_str(const std::string& s) {
-  std::string o = "\"";
-  for (char ch : s) {
-    if (ch == '"' || ch == '\\') {
-      o += '\\';
-      o += ch;
-    } else if (static_cast<unsigned char>(ch) < 0x20) {
-      char buf[8];
-      std::snprintf(buf, sizeof buf, "\\u%04x", ch);
-      o += buf;
-    } else {
-      o += ch;
-    }
-  }
-  return o + "\"";
-}
-
-std::string json_array(const std::vector<double>& v) {
-  std::string o = "[";
-  for (std::size_t i = 0; i < v.size(); ++i) o += (i ? ", " : "") + json_num(v[i]);
-  return o + "]";
-}
-
-}  // namespace
 
 void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const std::vector<PointRecord>& local,
                        std::int64_t total, double seconds, const std::string& output, double busy) {
