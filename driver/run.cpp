@@ -3,7 +3,6 @@
 #include <unistd.h>
 
 #include <algorithm>
-#include <atomic>
 #include <chrono>
 #include <cmath>
 #include <csignal>
@@ -12,12 +11,10 @@
 #include <filesystem>
 #include <future>
 #include <map>
-#include <numeric>
 #include <thread>
 
 #include "compute.hpp"
 #include "ensemble.hpp"
-#include "families.hpp"
 #include "journal.hpp"
 #include "report.hpp"
 #include "result_file.hpp"
