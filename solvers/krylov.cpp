@@ -36,11 +36,13 @@ struct PowerCtx {
   Mat A = nullptr;
   int p = 1;
   Vec w = nullptr;
+  bool fused = false;  // A is a layer operator with a fused A^p (layers.hpp)
 };
 
 PetscErrorCode power_mult(Mat S, Vec x, Vec y) {
   PowerCtx* c;
   PetscCall(MatShellGetContext(S, &c));
+  if (c->fused) return layer_power_mult(c->A, c->p, x, y);
   Vec src = x;
   for (int k = 0; k < c->p; ++k) {
     // Alternate between w and y so that the last product lands in y.
@@ -242,7 +244,7 @@ StageOut run_stage(const DistMatrix& A, const StageSpec& sp) {
     out.info.target = sp.target;
   } else if (p > 1) {
     TORAL_PCALL(MatCreateVecs(A.mat(), work.out(), nullptr));
-    pctx = PowerCtx{op, p, work.get()};
+    pctx = PowerCtx{op, p, work.get(), layer_power_available(op, p)};
     const PetscInt m = A.row_end - A.row_begin;
     TORAL_PCALL(MatCreateShell(comm, m, m, A.n, A.n, &pctx, shell.out()));
     TORAL_PCALL(MatShellSetOperation(shell.get(), MATOP_MULT, reinterpret_cast<void (*)(void)>(power_mult)));

@@ -37,11 +37,18 @@ struct LayerCtx {
   bool has_site = false;
   std::vector<double> site;    // 2x2 row-major per owned site (S with a site layer)
   std::vector<double> ghostL, ghostR, u;  // halo values and the middle vector (one chunk)
+  std::vector<double> haloL, haloR, t0, t1, tu, ga, gb;  // fused powers: halos, tile buffers, tile gates
+  bool regular = false;  // bond positions of each layer advance by 2 (fused powers rely on it)
   GateStore store = GateStore::Double;
 };
 
 // Sites per chunk: the middle vector of a chunk stays in cache.
 constexpr std::int64_t kChunk = 1024;
+// Fused powers A^p (apply_power): p <= kMaxFused, tiles of kTile sites. The
+// bond lists reach 2 kMaxFused sites beyond the owned ones for that.
+constexpr int kMaxFused = 16;
+constexpr std::int64_t kTile = 2048;
+constexpr std::int64_t kReach = 2 * kMaxFused + 2;
 
 int dim(const LayerCtx& c) { return 2 * c.w; }
 
@@ -206,6 +213,101 @@ void apply_layers(LayerCtx& c, const double* x, double* y) {
     }
 }
 
+// y = A^p x (no one-site layer) in tiles of kTile sites, each carried through
+// all p applications while it is in cache: one pass over x, y and the gates
+// instead of p. One application maps values on positions [lo, hi) to values
+// on [lo + 2, hi - 2) (first layer: bonds with both sites inside, giving
+// [lo + 1, hi - 1); second layer likewise), so a tile [c0, c1) starts from x
+// on [c0 - 2p, c1 + 2p), with halos of 2p sites from the neighbouring ranks
+// (every rank owns >= 2p sites: checked by layer_power_available). Each
+// output is computed by the same operations as p calls of apply_layers, so
+// the result is the same to the bit.
+template <int d, class T>
+void apply_power(LayerCtx& c, int p, const double* x, double* y) {
+  constexpr int w = d / 2;
+  constexpr int dd = d * d;
+  const std::int64_t m = c.m, H = 2 * static_cast<std::int64_t>(p);
+  const std::size_t nh = static_cast<std::size_t>(w * H);
+  c.haloL.assign(nh, 0.0);
+  c.haloR.assign(nh, 0.0);
+  MPI_Sendrecv(x + w * (m - H), static_cast<int>(nh), MPI_DOUBLE, c.right, 73, c.haloL.data(),
+               static_cast<int>(nh), MPI_DOUBLE, c.left, 73, c.comm, MPI_STATUS_IGNORE);
+  MPI_Sendrecv(x, static_cast<int>(nh), MPI_DOUBLE, c.left, 74, c.haloR.data(), static_cast<int>(nh),
+               MPI_DOUBLE, c.right, 74, c.comm, MPI_STATUS_IGNORE);
+  const std::size_t span = static_cast<std::size_t>(w * (kTile + 2 * H));
+  c.t0.assign(span, 0.0);
+  c.t1.assign(span, 0.0);
+  c.tu.assign(span, 0.0);
+  const Layer& A = c.layer[0];
+  const Layer& B = c.layer[1];
+  const T* GA = gates<T>(A);
+  const T* GB = gates<T>(B);
+  for (std::int64_t c0 = 0; c0 < m; c0 += kTile) {
+    const std::int64_t c1 = std::min(m, c0 + kTile);
+    const std::int64_t base = c0 - H;  // buffer index of position k: w * (k - base)
+    double* in = c.t0.data() - w * base;
+    double* out = c.t1.data() - w * base;
+    double* u = c.tu.data() - w * base;
+    // Load x on [c0 - H, c1 + H).
+    for (std::int64_t k = c0 - H; k < c1 + H; ++k)
+      for (int q = 0; q < w; ++q)
+        in[w * k + q] = k < 0    ? c.haloL[static_cast<std::size_t>(w * (k + H) + q)]
+                        : k >= m ? c.haloR[static_cast<std::size_t>(w * (k - m) + q)]
+                                 : x[w * k + q];
+    // The bonds of the tile (both sites in [c0 - H, c1 + H)) and their gates
+    // as doubles, converted once for all p steps. Bond positions advance by 2
+    // (layer_power_available checks that the lists are regular).
+    const std::size_t a0 = static_cast<std::size_t>(std::lower_bound(A.k.begin(), A.k.end(), c0 - H) - A.k.begin());
+    const std::size_t a1 = static_cast<std::size_t>(std::upper_bound(A.k.begin(), A.k.end(), c1 + H - 2) - A.k.begin());
+    const std::size_t b0 = static_cast<std::size_t>(std::lower_bound(B.k.begin(), B.k.end(), c0 - H) - B.k.begin());
+    const std::size_t b1 = static_cast<std::size_t>(std::upper_bound(B.k.begin(), B.k.end(), c1 + H - 2) - B.k.begin());
+    c.ga.resize((a1 - a0) * dd);
+    c.gb.resize((b1 - b0) * dd);
+    for (std::size_t i = 0; i < (a1 - a0) * dd; ++i) c.ga[i] = static_cast<double>(GA[a0 * dd + i]);
+    for (std::size_t i = 0; i < (b1 - b0) * dd; ++i) c.gb[i] = static_cast<double>(GB[b0 * dd + i]);
+    std::int64_t lo = c0 - H, hi = c1 + H;
+    for (int step = 0; step < p; ++step) {
+      // First layer: bonds k in [lo, hi - 2], sites left alone in [lo, hi).
+      if (a1 > a0) {
+        const std::int64_t ka = A.k[a0];
+        const std::int64_t j0 = std::max<std::int64_t>(0, (lo - ka + 1) / 2);
+        const std::int64_t j1 = std::min<std::int64_t>(static_cast<std::int64_t>(a1 - a0), (hi - 2 - ka) / 2 + 1);
+        const double* G = c.ga.data();
+        for (std::int64_t j = j0; j < j1; ++j)
+          apply_gate<d, double>(G + j * dd, in + w * (ka + 2 * j), u + w * (ka + 2 * j));
+      }
+      std::size_t j = static_cast<std::size_t>(std::lower_bound(A.alone.begin(), A.alone.end(), lo) - A.alone.begin());
+      for (; j < A.alone.size() && A.alone[j] < hi; ++j)
+        for (int q = 0; q < w; ++q) u[w * A.alone[j] + q] = in[w * A.alone[j] + q];
+      // Second layer on u, valid on [lo + 1, hi - 1): bonds k in [lo + 1, hi - 3].
+      if (b1 > b0) {
+        const std::int64_t kb = B.k[b0];
+        const std::int64_t j0 = std::max<std::int64_t>(0, (lo + 1 - kb + 1) / 2);
+        const std::int64_t j1 = std::min<std::int64_t>(static_cast<std::int64_t>(b1 - b0), (hi - 3 - kb) / 2 + 1);
+        const double* G = c.gb.data();
+        for (std::int64_t jj = j0; jj < j1; ++jj)
+          apply_gate<d, double>(G + jj * dd, u + w * (kb + 2 * jj), out + w * (kb + 2 * jj));
+      }
+      j = static_cast<std::size_t>(std::lower_bound(B.alone.begin(), B.alone.end(), lo + 1) - B.alone.begin());
+      for (; j < B.alone.size() && B.alone[j] < hi - 1; ++j)
+        for (int q = 0; q < w; ++q) out[w * B.alone[j] + q] = u[w * B.alone[j] + q];
+      lo += 2;
+      hi -= 2;
+      std::swap(in, out);
+    }
+    std::copy(in + w * c0, in + w * c1, y + w * c0);
+  }
+}
+
+template <int d>
+void apply_power_dispatch(LayerCtx& c, int p, const double* x, double* y) {
+  switch (c.store) {
+    case GateStore::Int8: apply_power<d, std::int8_t>(c, p, x, y); break;
+    case GateStore::Float: apply_power<d, float>(c, p, x, y); break;
+    case GateStore::Double: apply_power<d, double>(c, p, x, y); break;
+  }
+}
+
 template <int d>
 void apply_dispatch(LayerCtx& c, const double* x, double* y) {
   switch (c.store) {
@@ -233,7 +335,36 @@ PetscErrorCode shell_destroy(Mat S) {
   return 0;
 }
 
+bool is_layer_operator(Mat A) {
+  PetscBool shell = PETSC_FALSE;
+  if (PetscObjectTypeCompare(reinterpret_cast<PetscObject>(A), MATSHELL, &shell) || !shell) return false;
+  void (*f)(void) = nullptr;
+  if (MatShellGetOperation(A, MATOP_MULT, &f)) return false;
+  return f == reinterpret_cast<void (*)(void)>(shell_mult);
+}
+
 }  // namespace
+
+bool layer_power_available(Mat A, int p) {
+  int ok = 0;
+  LayerCtx* c = nullptr;
+  MPI_Comm comm = PetscObjectComm(reinterpret_cast<PetscObject>(A));
+  if (is_layer_operator(A) && MatShellGetContext(A, &c) == 0 && c)
+    ok = p >= 2 && p <= kMaxFused && !c->has_site && c->regular && c->m >= 2 * p ? 1 : 0;
+  MPI_Allreduce(MPI_IN_PLACE, &ok, 1, MPI_INT, MPI_MIN, comm);
+  return ok == 1;
+}
+
+PetscErrorCode layer_power_mult(Mat A, int p, Vec x, Vec y) {
+  LayerCtx* c;
+  PetscCall(MatShellGetContext(A, &c));
+  return with_local_arrays(x, y, [c, p](const PetscScalar* xa, PetscScalar* ya) {
+    if (c->w == 1)
+      apply_power_dispatch<2>(*c, p, xa, ya);
+    else
+      apply_power_dispatch<4>(*c, p, xa, ya);
+  });
+}
 
 DistMatrix make_layer_operator(MPI_Comm comm, const GateSource& g, std::int64_t t, Operator op) {
   DistMatrix d;
@@ -284,8 +415,13 @@ DistMatrix make_layer_operator(MPI_Comm comm, const GateSource& g, std::int64_t 
       }
       // First applied layer: M, M^-T, S start with the even bonds; M^-1 with the odd ones.
       const int first = op == Operator::MInverse ? 1 : 0;
-      build_layer(*c, c->layer[0], first, -2, c->m, -1, c->m + 1);
-      build_layer(*c, c->layer[1], 1 - first, -1, c->m - 1, 0, c->m);
+      // The bond lists reach kReach sites beyond the owned ones (apply_layers
+      // uses [-2, m] and [-1, m - 1]; apply_power up to 2 kMaxFused).
+      build_layer(*c, c->layer[0], first, -kReach, c->m + kReach, -kReach, c->m + kReach);
+      build_layer(*c, c->layer[1], 1 - first, -kReach, c->m + kReach, -kReach, c->m + kReach);
+      c->regular = true;
+      for (const Layer& ly : c->layer)
+        for (std::size_t j = 1; j < ly.k.size(); ++j) c->regular = c->regular && ly.k[j] == ly.k[j - 1] + 2;
       c->ghostL.assign(static_cast<std::size_t>(2 * c->w), 0.0);
       c->ghostR.assign(static_cast<std::size_t>(2 * c->w), 0.0);
       c->u.assign(static_cast<std::size_t>(c->w * (kChunk + 2)), 0.0);
