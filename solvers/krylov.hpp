@@ -22,6 +22,8 @@
 //     residual; pairs above tol are not accepted. (At L = 1e6 the cost is the
 //     orthogonalisation of the Krylov basis: power 5 needed 3x fewer basis
 //     vectors than power 1 for 1.8x more products on the disordered chain.)
+//     On a layer operator A^power is one fused pass (layer_power_mult,
+//     layers.hpp), bit-identical to power products.
 //   Shift-invert: STSINVERT + KSPPREONLY + the distributed banded LU of
 //     banded.hpp (si_solver "banded", default) or PCLU + MATSOLVERMUMPS
 //     ("mumps"; measured ~1 us per elimination-tree node per solve on these
