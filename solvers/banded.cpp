@@ -9,7 +9,6 @@
 #include <mpi.h>
 
 #include <algorithm>
-#include <cmath>
 #include <cstdlib>
 #include <exception>
 #include <string>
@@ -20,78 +19,21 @@ namespace {
 
 using cd = std::complex<double>;
 
-// Band LU with partial pivoting and its solve, for the small half-bandwidths
-// here (b = 2 or 5): LAPACK's unblocked dgbtf2/zgbtf2 (which dgbtrf uses for
-// b < its block size) and dgbtrs/zgbtrs with one right-hand side, written
-// out. Same storage (column-major band, ldab = 3b + 1, kl = ku = b), same
-// pivot choice (the first largest |x|, |Re| + |Im| for complex values as
-// LAPACK's i?amax), same operation order; inlined they avoid the per-column
-// BLAS calls (idamax, dswap, dscal, dger: ~n calls of length <= b) that made
-// a solve at n = 5e4, b = 2 cost 2 ms in LAPACK against ~0.2 ms here.
-inline double pivot_size(double v) { return std::fabs(v); }
-inline double pivot_size(cd v) { return std::fabs(v.real()) + std::fabs(v.imag()); }
-
-template <class T>
-lapack_int gbtrf(lapack_int n, int b, T* ab, int ldab, lapack_int* piv) {
-  const int kv = 2 * b;  // row of the diagonal in band storage
-  lapack_int info = 0;
-  lapack_int ju = 0;     // last column touched by the row interchanges so far
-  auto at = [&](lapack_int i, lapack_int j) -> T& { return ab[static_cast<std::size_t>(j) * ldab + kv + i - j]; };
-  for (lapack_int j = 0; j < n; ++j) {
-    const lapack_int km = std::min<lapack_int>(b, n - 1 - j);
-    lapack_int jp = 0;
-    double big = pivot_size(at(j, j));
-    for (lapack_int r = 1; r <= km; ++r)
-      if (pivot_size(at(j + r, j)) > big) big = pivot_size(at(j + r, j)), jp = r;
-    piv[j] = j + jp + 1;  // 1-based, as LAPACK
-    if (at(j + jp, j) == T(0)) {
-      if (info == 0) info = j + 1;
-      continue;
-    }
-    ju = std::max(ju, std::min<lapack_int>(j + b + jp, n - 1));
-    if (jp != 0)
-      for (lapack_int c = j; c <= ju; ++c) std::swap(at(j + jp, c), at(j, c));
-    if (km > 0) {
-      const T inv = T(1) / at(j, j);
-      for (lapack_int r = 1; r <= km; ++r) at(j + r, j) *= inv;
-      for (lapack_int c = j + 1; c <= ju; ++c) {
-        const T u = at(j, c);
-        if (u != T(0))
-          for (lapack_int r = 1; r <= km; ++r) at(j + r, c) -= at(j + r, j) * u;
-      }
-    }
-  }
-  return info;
+// LAPACK and MPI by scalar type.
+inline lapack_int gbtrf(lapack_int m, int b, double* ab, int ldab, lapack_int* piv) {
+  return LAPACKE_dgbtrf(LAPACK_COL_MAJOR, m, m, b, b, ab, ldab, piv);
 }
-
-template <class T>
-lapack_int gbtrs(lapack_int n, int b, lapack_int nrhs, const T* ab, int ldab, const lapack_int* piv, T* x) {
-  const int kd = 2 * b;
-  for (lapack_int q = 0; q < nrhs; ++q) {
-    T* v = x + static_cast<std::size_t>(q) * n;
-    // L: the interchanges and unit lower factor, column by column.
-    for (lapack_int j = 0; j + 1 < n; ++j) {
-      const lapack_int lm = std::min<lapack_int>(b, n - 1 - j);
-      const lapack_int l = piv[j] - 1;
-      if (l != j) std::swap(v[l], v[j]);
-      const T t = v[j];
-      const T* col = ab + static_cast<std::size_t>(j) * ldab + kd;
-      if (t != T(0))
-        for (lapack_int r = 1; r <= lm; ++r) v[j + r] -= col[r] * t;
-    }
-    // U (bandwidth 2b), backward, column-oriented as dtbsv.
-    for (lapack_int j = n - 1; j >= 0; --j) {
-      if (v[j] == T(0)) continue;
-      const T* col = ab + static_cast<std::size_t>(j) * ldab + kd - j;  // col[i] = U(i, j)
-      v[j] /= col[j];
-      const T t = v[j];
-      for (lapack_int i = std::max<lapack_int>(0, j - kd); i < j; ++i) v[i] -= t * col[i];
-    }
-  }
-  return 0;
+inline lapack_int gbtrf(lapack_int m, int b, cd* ab, int ldab, lapack_int* piv) {
+  return LAPACKE_zgbtrf(LAPACK_COL_MAJOR, m, m, b, b, ab, ldab, piv);
 }
-
-// Dense LAPACK and MPI by scalar type.
+inline lapack_int gbtrs(lapack_int m, int b, lapack_int nrhs, const double* ab, int ldab, const lapack_int* piv,
+                        double* x) {
+  return LAPACKE_dgbtrs(LAPACK_COL_MAJOR, 'N', m, b, b, nrhs, ab, ldab, piv, x, m);
+}
+inline lapack_int gbtrs(lapack_int m, int b, lapack_int nrhs, const cd* ab, int ldab, const lapack_int* piv,
+                        cd* x) {
+  return LAPACKE_zgbtrs(LAPACK_COL_MAJOR, 'N', m, b, b, nrhs, ab, ldab, piv, x, m);
+}
 inline lapack_int getrf(int n, double* a, lapack_int* piv) { return LAPACKE_dgetrf(LAPACK_COL_MAJOR, n, n, a, n, piv); }
 inline lapack_int getrf(int n, cd* a, lapack_int* piv) { return LAPACKE_zgetrf(LAPACK_COL_MAJOR, n, n, a, n, piv); }
 inline lapack_int getrs(int n, const double* a, const lapack_int* piv, double* x) {
