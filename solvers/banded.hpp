@@ -11,9 +11,8 @@
 //
 // Method (a partition / SPIKE scheme with exact reduced system): rank p owns
 // the contiguous rows [r_p, r_{p+1}) (the matrix's own ownership), with the
-// diagonal block A_p (band LU with partial pivoting, LAPACK's dgbtf2 written
-// out in banded.cpp), B_p (its last b rows coupled to the first b columns of
-// the next block) and C_p (its
+// diagonal block A_p (banded, LAPACK dgbtrf with partial pivoting), B_p (its
+// last b rows coupled to the first b columns of the next block) and C_p (its
 // first b rows coupled to the last b columns of the previous block; next and
 // previous are cyclic, so rings and P = 1 rings need nothing special). With
 // the spikes V_p = A_p^-1 [0; B_p] and W_p = A_p^-1 [C_p; 0], the top b and
