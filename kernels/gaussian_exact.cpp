@@ -1,5 +1,7 @@
 #include "gaussian_exact.hpp"
 
+#include "multimod.hpp"
+
 #include <acb.h>
 #include <acb_poly.h>
 #include <arb.h>
@@ -11,6 +13,7 @@
 #include <flint/fmpz_vec.h>
 #include <flint/nmod_mat.h>
 #include <flint/nmod_poly.h>
+#include <flint/nmod_vec.h>
 #include <flint/ulong_extras.h>
 
 #include <algorithm>
@@ -175,11 +178,18 @@ void build_sigma0(Problem& pr, const std::vector<GaussianSite>& init) {
 
 // The light-cone-restricted rows R = P_A S^t: columns `support` (sorted
 // global indices) of the 2k x 2L matrix, stored as a 2k x |support| fmpz_mat.
+// R_t = P_A S^t on the light cone, exactly (fmpz), and (while they fit in
+// `residue_budget` bytes) its residues modulo enough 28-bit primes to
+// reconstruct G = R diag(D) R^T = 2 Den sigma_A, updated alongside R_t: G is
+// then formed multi-modularly (multimod.hpp lanes, then CRT), several times
+// faster than the big-integer dot products, which remain the path past the
+// budget (very wide light cones). Both give the same exact G.
 class LightCone {
  public:
-  LightCone(const Problem& pr, const SparseInt& S)
+  LightCone(const Problem& pr, const SparseInt& S, std::int64_t residue_budget)
       : pr_(pr),
         S_(S),
+        budget_(residue_budget),
         where_(static_cast<std::size_t>(2 * pr.L), -1),
         mark_(static_cast<std::size_t>(2 * pr.L), 0) {
     support_ = pr.rows;
@@ -189,6 +199,23 @@ class LightCone {
       const auto it =
           std::lower_bound(support_.begin(), support_.end(), pr.rows[static_cast<std::size_t>(r)]);
       fmpz_one(fmpz_mat_entry(R_->m, r, it - support_.begin()));
+    }
+    // Distinct values of S (coefficients of the residue update) and of D.
+    svals_.assign(S.val.begin(), S.val.end());
+    std::sort(svals_.begin(), svals_.end());
+    svals_.erase(std::unique(svals_.begin(), svals_.end()), svals_.end());
+    sidx_.resize(S.val.size());
+    for (std::size_t e = 0; e < S.val.size(); ++e)
+      sidx_[e] = static_cast<std::int32_t>(std::lower_bound(svals_.begin(), svals_.end(), S.val[e]) - svals_.begin());
+    if (!pr.unit_D) {
+      d_index_.resize(pr.D.size());
+      for (std::size_t c = 0; c < pr.D.size(); ++c) {
+        std::size_t i = 0;
+        while (i < dvals_.size() && !fmpz_equal(dvals_[i], pr.D[c].v)) ++i;
+        if (i == dvals_.size()) dvals_.push_back(pr.D[c].v);
+        d_index_[c] = static_cast<std::int32_t>(i);
+      }
+      for (const fmpz* d : dvals_) dbits_ = std::max<slong>(dbits_, static_cast<slong>(fmpz_bits(d)));
     }
   }
 
@@ -207,13 +234,32 @@ class LightCone {
       }
     const slong rows = 2 * pr_.k;
     auto Rn = std::make_unique<FmpzMat>(rows, static_cast<slong>(next.size()));
+    // Contributions (new column, old column, index of the value) by new column.
+    std::vector<std::int64_t> count(next.size() + 1, 0);
     for (std::size_t ci = 0; ci < support_.size(); ++ci) {
       const std::int64_t g = support_[ci];
       for (std::int64_t e = S_.rowptr[g]; e < S_.rowptr[g + 1]; ++e) {
         const std::int64_t jj = where_[S_.col[e]];
+        ++count[static_cast<std::size_t>(jj) + 1];
         const slong v = static_cast<slong>(S_.val[e]);
         for (slong r = 0; r < rows; ++r)
-          fmpz_addmul_si(fmpz_mat_entry(Rn->m, r, jj), fmpz_mat_entry(R_->m, r, ci), v);
+          fmpz_addmul_si(fmpz_mat_entry(Rn->m, r, jj), fmpz_mat_entry(R_->m, r, static_cast<slong>(ci)), v);
+      }
+    }
+    std::vector<std::int64_t> src, fill;
+    std::vector<std::int32_t> coef;
+    if (nres_ > 0) {
+      for (std::size_t j = 0; j < next.size(); ++j) count[j + 1] += count[j];
+      src.resize(static_cast<std::size_t>(count.back()));
+      coef.resize(src.size());
+      fill.assign(count.begin(), count.end() - 1);
+      for (std::size_t ci = 0; ci < support_.size(); ++ci) {
+        const std::int64_t g = support_[ci];
+        for (std::int64_t e = S_.rowptr[g]; e < S_.rowptr[g + 1]; ++e) {
+          const std::size_t at = static_cast<std::size_t>(fill[static_cast<std::size_t>(where_[S_.col[e]])]++);
+          src[at] = static_cast<std::int64_t>(ci);
+          coef[at] = sidx_[static_cast<std::size_t>(e)];
+        }
       }
     }
     for (std::int64_t j : next) where_[j] = -1;
@@ -225,12 +271,29 @@ class LightCone {
       for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->m, r, j));
       if (nz) keep.push_back(static_cast<std::int64_t>(j));
     }
+    if (nres_ > 0) {
+      // The residues of the kept columns, from the old residues.
+      std::vector<std::int64_t> ptr(keep.size() + 1, 0), ksrc;
+      std::vector<std::int32_t> kcoef;
+      for (std::size_t o = 0; o < keep.size(); ++o) {
+        const std::size_t j = static_cast<std::size_t>(keep[o]);
+        for (std::int64_t t = count[j]; t < count[j + 1]; ++t) {
+          ksrc.push_back(src[static_cast<std::size_t>(t)]);
+          kcoef.push_back(coef[static_cast<std::size_t>(t)]);
+        }
+        ptr[o + 1] = static_cast<std::int64_t>(ksrc.size());
+      }
+      Rspare_.resize(static_cast<std::size_t>(rows) * keep.size() * nres_);
+      multimod::combine(moduli(nres_), static_cast<int>(rows), support_.size(), keep.size(), ptr.data(),
+                        ksrc.data(), kcoef.data(), svals_.data(), Rres_.data(), Rspare_.data());
+      std::swap(Rres_, Rspare_);
+    }
     if (keep.size() != next.size()) {
       auto Rk = std::make_unique<FmpzMat>(rows, static_cast<slong>(keep.size()));
       std::vector<std::int64_t> kept_cols;
       for (std::size_t j = 0; j < keep.size(); ++j) {
         for (slong r = 0; r < rows; ++r)
-          fmpz_swap(fmpz_mat_entry(Rk->m, r, j), fmpz_mat_entry(Rn->m, r, keep[j]));
+          fmpz_swap(fmpz_mat_entry(Rk->m, r, static_cast<slong>(j)), fmpz_mat_entry(Rn->m, r, keep[j]));
         kept_cols.push_back(next[static_cast<std::size_t>(keep[j])]);
       }
       Rn = std::move(Rk);
@@ -241,7 +304,57 @@ class LightCone {
   }
 
   // G = R diag(D) R^T (2k x 2k, symmetric, exact) = 2 Den sigma_A.
-  void gram(fmpz_mat_t G) const {
+  void gram(fmpz_mat_t G) {
+    const slong rows = 2 * pr_.k;
+    const std::size_t cols = support_.size();
+    if (cols == 0) {
+      fmpz_mat_zero(G);
+      return;
+    }
+    // |G_ab| <= sum_c D_c |R_ac| |R_bc| < cols 2^(2 bits(R) + bits(D)): the
+    // primes must cover twice that (signed reconstruction).
+    const double need_bits = 2.0 * static_cast<double>(bits()) + static_cast<double>(dbits_) +
+                             std::log2(static_cast<double>(cols)) + 2.0;
+    const std::size_t np =
+        multimod::kLanes *
+        static_cast<std::size_t>(std::ceil(need_bits / multimod::kPrimeBits / static_cast<double>(multimod::kLanes)));
+    if (!exact_only_ && static_cast<double>(rows) * static_cast<double>(cols) *
+                                static_cast<double>(std::max(np, nres_)) * 8.0 >
+                            static_cast<double>(budget_)) {
+      exact_only_ = true;  // residues of R no longer fit: drop them for good
+      std::vector<std::uint32_t>().swap(Rres_);
+      std::vector<std::uint32_t>().swap(Rspare_);
+      nres_ = 0;
+    }
+    if (exact_only_) {
+      gram_dot(G);
+      return;
+    }
+    if (np > nres_) {
+      multimod::extend_primes(primes_, np);
+      extend_residues(np);
+    }
+    const std::size_t rr = static_cast<std::size_t>(rows * rows);
+    Gres_.resize(rr * nres_);
+    multimod::gram(moduli(nres_), static_cast<int>(rows), cols, Rres_.data(), pr_.unit_D ? nullptr : Dres_.data(),
+                   dvals_.size(), pr_.unit_D ? nullptr : col_d_index().data(), Gres_.data());
+    if (comb_np_ != nres_) {
+      comb_.reset();
+      comb_ = std::make_unique<Comb>(primes_.data(), static_cast<slong>(nres_));
+      comb_np_ = nres_;
+    }
+    std::vector<mp_limb_t> r(nres_);
+    for (slong a = 0; a < rows; ++a)
+      for (slong b = a; b < rows; ++b) {
+        const std::size_t e = static_cast<std::size_t>(a * rows + b);
+        for (std::size_t ip = 0; ip < nres_; ++ip) r[ip] = Gres_[multimod::lane_index(rr, e, ip)];
+        fmpz_multi_CRT_ui(fmpz_mat_entry(G, a, b), r.data(), comb_->comb, comb_->temp, 1);
+        if (b != a) fmpz_set(fmpz_mat_entry(G, b, a), fmpz_mat_entry(G, a, b));
+      }
+  }
+
+  // The same by big-integer dot products (reference and past the budget).
+  void gram_dot(fmpz_mat_t G) const {
     const slong rows = 2 * pr_.k;
     const slong n = static_cast<slong>(support_.size());
     if (n == 0) {
@@ -264,6 +377,48 @@ class LightCone {
       }
   }
 
+  // G mod p for one word prime p (FLINT arithmetic, independent of the lanes).
+  void gram_mod(std::vector<mp_limb_t>& g, mp_limb_t p) const {
+    const slong rows = 2 * pr_.k;
+    const std::size_t cols = support_.size();
+    nmod_t mod;
+    nmod_init(&mod, p);
+    std::vector<mp_limb_t> r(static_cast<std::size_t>(rows) * cols), w(cols, 1);
+    for (slong a = 0; a < rows; ++a)
+      for (std::size_t c = 0; c < cols; ++c)
+        r[static_cast<std::size_t>(a) * cols + c] = fmpz_fdiv_ui(fmpz_mat_entry(R_->m, a, static_cast<slong>(c)), p);
+    if (!pr_.unit_D)
+      for (std::size_t c = 0; c < cols; ++c) w[c] = fmpz_fdiv_ui(pr_.D[static_cast<std::size_t>(support_[c])].v, p);
+    std::vector<mp_limb_t> rw(r);  // rows times the weights
+    if (!pr_.unit_D)
+      for (slong a = 0; a < rows; ++a)
+        for (std::size_t c = 0; c < cols; ++c) {
+          mp_limb_t& x = rw[static_cast<std::size_t>(a) * cols + c];
+          x = nmod_mul(x, w[c], mod);
+        }
+    const int nlimbs = _nmod_vec_dot_bound_limbs(static_cast<slong>(cols), mod);
+    g.assign(static_cast<std::size_t>(rows * rows), 0);
+    for (slong a = 0; a < rows; ++a)
+      for (slong b = a; b < rows; ++b)
+        g[static_cast<std::size_t>(a * rows + b)] = g[static_cast<std::size_t>(b * rows + a)] =
+            _nmod_vec_dot(rw.data() + static_cast<std::size_t>(a) * cols, r.data() + static_cast<std::size_t>(b) * cols,
+                          static_cast<slong>(cols), mod, nlimbs);
+  }
+
+  // Upper bounds (64-bit balls) of the diagonal entries G_aa.
+  void gram_diagonal(std::vector<Arb>& d) const {
+    const slong rows = 2 * pr_.k, wp = 64;
+    d = std::vector<Arb>(static_cast<std::size_t>(rows));
+    Arb x;
+    for (slong a = 0; a < rows; ++a)
+      for (std::size_t c = 0; c < support_.size(); ++c) {
+        arb_set_round_fmpz(x.v, fmpz_mat_entry(R_->m, a, static_cast<slong>(c)), wp);
+        arb_sqr(x.v, x.v, wp);
+        if (!pr_.unit_D) arb_mul_fmpz(x.v, x.v, pr_.D[static_cast<std::size_t>(support_[c])].v, wp);
+        arb_add(d[static_cast<std::size_t>(a)].v, d[static_cast<std::size_t>(a)].v, x.v, wp);
+      }
+  }
+
   std::int64_t bits() const {
     const slong b = fmpz_mat_max_bits(R_->m);
     return b < 0 ? -b : b;
@@ -271,12 +426,66 @@ class LightCone {
   std::int64_t columns() const { return static_cast<std::int64_t>(support_.size()); }
 
  private:
+  multimod::Moduli moduli(std::size_t np) const {
+    multimod::Moduli md;
+    md.primes = primes_.data();
+    md.np = np;
+    return md;
+  }
+
+  std::vector<std::int32_t> col_d_index() const {
+    std::vector<std::int32_t> idx(support_.size());
+    for (std::size_t c = 0; c < support_.size(); ++c) idx[c] = d_index_[static_cast<std::size_t>(support_[c])];
+    return idx;
+  }
+
+  // Residues of R (and of the distinct D values) for primes [nres_, np):
+  // more lane blocks at the end of the lane arrays.
+  void extend_residues(std::size_t np) {
+    const std::size_t entries = static_cast<std::size_t>(2 * pr_.k) * support_.size();
+    Rres_.resize(entries * np);
+    Dres_.resize(dvals_.size() * np);
+    std::vector<const fmpz*> vals(entries);
+    for (std::size_t e = 0; e < entries; ++e) vals[e] = R_->m->entries + e;  // row-major (r, c)
+    const multimod::Moduli md = moduli(np);
+    multimod::reduce(md, nres_, np, vals.data(), entries, Rres_.data());
+    if (!dvals_.empty()) multimod::reduce(md, nres_, np, dvals_.data(), dvals_.size(), Dres_.data());
+    nres_ = np;
+  }
+
+  struct Comb {
+    fmpz_comb_t comb;
+    fmpz_comb_temp_t temp;
+    Comb(const mp_limb_t* primes, slong n) {
+      fmpz_comb_init(comb, primes, n);
+      fmpz_comb_temp_init(temp, comb);
+    }
+    ~Comb() {
+      fmpz_comb_temp_clear(temp);
+      fmpz_comb_clear(comb);
+    }
+    Comb(const Comb&) = delete;
+    Comb& operator=(const Comb&) = delete;
+  };
+
   const Problem& pr_;
   const SparseInt& S_;
+  std::int64_t budget_;
   std::vector<std::int64_t> support_;
   std::unique_ptr<FmpzMat> R_;
   std::vector<std::int64_t> where_;
   std::vector<char> mark_;
+  // Residues.
+  std::vector<std::uint64_t> primes_;
+  std::vector<std::int64_t> svals_;
+  std::vector<std::int32_t> sidx_;
+  std::vector<const fmpz*> dvals_;
+  std::vector<std::int32_t> d_index_;
+  slong dbits_ = 0;  // max bits of a D value
+  std::size_t nres_ = 0, comb_np_ = 0;
+  bool exact_only_ = false;
+  std::vector<std::uint32_t> Rres_, Rspare_, Dres_, Gres_;
+  std::unique_ptr<Comb> comb_;
 };
 
 // One t: symplectic eigenvalues and entropy from G = 2 Den sigma_A.
@@ -353,48 +562,98 @@ class ModularCharpoly {
  public:
   ~ModularCharpoly() { drop_comb(); }
 
-  bool even_charpoly(fmpz_poly_t q, const fmpz_mat_t G, slong k, slong bound_bits) {
+  // q from the exact G under the bound |q_i| < 2^bound_bits; false when the
+  // guard prime disagrees.
+  bool even_charpoly(fmpz_poly_t q, const fmpz_mat_t G, const LightCone& lc, slong k, slong bound_bits) {
     const slong n = 2 * k;
-    // Rounded up to a multiple of 32 primes so that the comb (product tree and
-    // CRT inverses) is rebuilt only every few steps as the bound grows.
-    const slong np = 32 * ((std::max<slong>(1, (bound_bits + 1 + 61) / 62) + 31) / 32);
-    ensure_primes(np + 1);
-    set_comb(np);
     // q-p decoupled sigma_A = X (+) Z (position-class circuits on q-p
-    // product states): mu_j^2 are the eigenvalues of Z X, so q = charpoly(Z X),
-    // k x k instead of 2k x 2k.
+    // product states): k x k instead of 2k x 2k below.
     bool decoupled = true;
     for (slong a = 0; a < k && decoupled; ++a)
       for (slong b = k; b < n && decoupled; ++b) decoupled = fmpz_is_zero(fmpz_mat_entry(G, a, b));
-    // Residues of the distinct entries of G that are used.
-    std::vector<mp_limb_t> res(static_cast<std::size_t>(n * n * np), 0);
-    for (slong a = 0; a < n; ++a)
-      for (slong b = a; b < n; ++b) {
-        if (decoupled && a < k && b >= k) continue;  // zero block
-        mp_limb_t* r = res.data() + (a * n + b) * np;
-        fmpz_multi_mod_ui(r, fmpz_mat_entry(G, a, b), comb_, temp_);
-        if (b != a) std::copy(r, r + np, res.data() + (b * n + a) * np);
+    // Primes p > 2^27: np of them reconstruct |q_i| < 2^bound_bits (signed).
+    // Rounded up to a multiple of 64 primes so that the comb (product tree and
+    // CRT inverses) is rebuilt only every few steps as the bound grows.
+    const slong np = 64 * ((std::max<slong>(1, (bound_bits + 1 + multimod::kPrimeBits - 1) / multimod::kPrimeBits) +
+                            63) / 64);
+    const std::size_t unp = static_cast<std::size_t>(np);
+    multimod::extend_primes(primes_, unp);
+    set_comb(np);
+    multimod::Moduli md;
+    md.primes = primes_.data();
+    md.np = unp;
+    // The residues of each distinct entry of G, placed (negated where J puts a
+    // minus) into the lane array(s) of the matrix whose characteristic
+    // polynomial is taken: J G (2k x 2k) or, decoupled, Z and X (k x k).
+    const std::size_t nn = static_cast<std::size_t>(n * n), kk = static_cast<std::size_t>(k * k);
+    std::vector<std::uint32_t> a, z, x;
+    if (decoupled) {
+      z.resize(kk * unp);
+      x.resize(kk * unp);
+    } else {
+      a.resize(nn * unp);
+    }
+    std::vector<mp_limb_t> r(unp);
+    auto put = [&](std::vector<std::uint32_t>& dst, std::size_t E, slong i, slong j, slong dim, bool negate) {
+      const std::size_t e = static_cast<std::size_t>(i * dim + j);
+      for (std::size_t ip = 0; ip < unp; ++ip) {
+        const std::uint32_t v = static_cast<std::uint32_t>(r[ip]);
+        dst[multimod::lane_index(E, e, ip)] = negate && v != 0 ? static_cast<std::uint32_t>(primes_[ip]) - v : v;
       }
-    std::vector<mp_limb_t> qres(static_cast<std::size_t>((k + 1) * np));
-    std::vector<mp_limb_t> gq(static_cast<std::size_t>(k + 1));
-    for (slong ip = 0; ip < np; ++ip) {
-      if (!charpoly_mod(
-              gq, [&](slong a, slong b) { return res[static_cast<std::size_t>((a * n + b) * np + ip)]; }, k,
-              primes_[static_cast<std::size_t>(ip)], decoupled))
-        return false;
-      for (slong i = 0; i <= k; ++i)
-        qres[static_cast<std::size_t>(i * np + ip)] = gq[static_cast<std::size_t>(i)];
+    };
+    for (slong u = 0; u < n; ++u)
+      for (slong v = u; v < n; ++v) {
+        if (decoupled && u < k && v >= k) continue;  // zero block
+        fmpz_multi_mod_ui(r.data(), fmpz_mat_entry(G, u, v), comb_, temp_);
+        for (int side = 0; side < (u == v ? 1 : 2); ++side) {
+          const slong row = side == 0 ? u : v, col = side == 0 ? v : u;  // G(row, col)
+          if (decoupled) {
+            if (row < k)
+              put(x, kk, row, col, k, false);
+            else
+              put(z, kk, row - k, col - k, k, false);
+          } else if (row >= k) {
+            put(a, nn, row - k, col, n, false);  // J G (i, .) = G(i + k, .)
+          } else {
+            put(a, nn, row + k, col, n, true);  // J G (i + k, .) = -G(i, .)
+          }
+        }
+      }
+    const std::size_t k1 = static_cast<std::size_t>(k + 1), n1 = static_cast<std::size_t>(n + 1);
+    std::vector<std::uint32_t> qres(k1 * unp);
+    if (decoupled) {
+      // sigma_A = X (+) Z: mu_j^2 are the eigenvalues of Z X, q = charpoly(Z X).
+      multimod::charpoly_of_product(md, static_cast<int>(k), z.data(), x.data(), qres.data());
+    } else {
+      std::vector<std::uint32_t> cp(n1 * unp);
+      multimod::charpoly(md, static_cast<int>(n), a.data(), cp.data());
+      // charpoly(JG)(x) = q(-x^2) (-1)^k: even, q_i = (-1)^(k+i) c_2i.
+      for (std::size_t ip = 0; ip < unp; ++ip) {
+        const std::uint32_t p = static_cast<std::uint32_t>(primes_[ip]);
+        for (slong i = 0; i <= k; ++i) {
+          const std::uint32_t c = cp[multimod::lane_index(n1, static_cast<std::size_t>(2 * i), ip)];
+          qres[multimod::lane_index(k1, static_cast<std::size_t>(i), ip)] = (k + i) % 2 != 0 && c != 0 ? p - c : c;
+          if (i < k && cp[multimod::lane_index(n1, static_cast<std::size_t>(2 * i + 1), ip)] != 0)
+            return false;  // must be even
+        }
+      }
     }
     fmpz_poly_zero(q);
     Fmpz c;
     for (slong i = 0; i <= k; ++i) {
-      fmpz_multi_CRT_ui(c.v, qres.data() + i * np, comb_, temp_, 1);
+      for (std::size_t ip = 0; ip < unp; ++ip) r[ip] = qres[multimod::lane_index(k1, static_cast<std::size_t>(i), ip)];
+      fmpz_multi_CRT_ui(c.v, r.data(), comb_, temp_, 1);
       fmpz_poly_set_coeff_fmpz(q, i, c.v);
     }
-    // Guard prime, through the full 2k x 2k route.
-    const mp_limb_t pg = primes_[static_cast<std::size_t>(np)];
+    // Guard prime (62-bit, outside both CRT sets): G mod it straight from the
+    // exact R_t (not from G, so it also checks the multi-modular G), the
+    // characteristic polynomial with FLINT's nmod arithmetic.
+    const mp_limb_t pg = guard_prime();
+    std::vector<mp_limb_t> gmod;
+    lc.gram_mod(gmod, pg);
+    std::vector<mp_limb_t> gq(static_cast<std::size_t>(k + 1));
     if (!charpoly_mod(
-            gq, [&](slong a, slong b) { return fmpz_fdiv_ui(fmpz_mat_entry(G, a, b), pg); }, k, pg, false))
+            gq, [&](slong a, slong b) { return gmod[static_cast<std::size_t>(a * n + b)]; }, k, pg, false))
       return false;
     for (slong i = 0; i <= k; ++i) {
       fmpz_poly_get_coeff_fmpz(c.v, q, i);
@@ -451,9 +710,9 @@ class ModularCharpoly {
     return ok;
   }
 
-  void ensure_primes(slong count) {
-    while (static_cast<slong>(primes_.size()) < count)
-      primes_.push_back(n_nextprime(primes_.empty() ? (UWORD(1) << 62) : primes_.back(), 1));
+  static mp_limb_t guard_prime() {
+    static const mp_limb_t p = n_nextprime(UWORD(1) << 62, 1);
+    return p;
   }
   void set_comb(slong np) {
     if (comb_np_ == np) return;
@@ -469,7 +728,7 @@ class ModularCharpoly {
     comb_np_ = 0;
   }
 
-  std::vector<mp_limb_t> primes_;
+  std::vector<std::uint64_t> primes_;  // the CRT primes, 28-bit
   fmpz_comb_t comb_;
   fmpz_comb_temp_t temp_;
   slong comb_np_ = 0;
@@ -589,18 +848,25 @@ class SpectrumSolver {
   std::int64_t fallbacks() const { return fallbacks_; }
   std::int64_t root_fallbacks() const { return root_fallbacks_; }
 
-  PointResult evaluate(const fmpz_mat_t G, const EntropyOptions& opt) {
+  PointResult evaluate(LightCone& lc, const EntropyOptions& opt) {
     PointResult out;
     const slong k = k_;
     if (k == 0) return out;
     FmpzPoly q;
+    FmpzMat G(2 * k, 2 * k);
     if (opt.reference) {
-      flint_charpoly(q.p, G);
-    } else if (!ModularOK(q.p, G)) {
-      // The guard prime disagreed (a wrong bound would be a bug): recompute
-      // with FLINT's own Hadamard-bounded modular characteristic polynomial.
-      ++fallbacks_;
-      flint_charpoly(q.p, G);
+      lc.gram_dot(G.m);
+      flint_charpoly(q.p, G.m);
+    } else {
+      lc.gram(G.m);
+      if (!ModularOK(q.p, G.m, lc)) {
+        // The guard prime disagreed (a wrong bound or G would be a bug):
+        // recompute with FLINT's own Hadamard-bounded modular characteristic
+        // polynomial of the G of the big-integer dot products.
+        ++fallbacks_;
+        lc.gram_dot(G.m);
+        flint_charpoly(q.p, G.m);
+      }
     }
     // Q(z) = q(z + Den^2): roots z_j = mu_j^2 - Den^2 = 4 Den^2 (nu_j^2 - 1/4) >= 0.
     FmpzPoly Q;
@@ -733,8 +999,10 @@ class SpectrumSolver {
   }
 
  private:
-  bool ModularOK(fmpz_poly_t q, const fmpz_mat_t G) {
-    return modular_.even_charpoly(q, G, k_, coefficient_bound_bits(G));
+  bool ModularOK(fmpz_poly_t q, const fmpz_mat_t G, const LightCone& lc) {
+    std::vector<Arb> diag;
+    lc.gram_diagonal(diag);
+    return modular_.even_charpoly(q, G, lc, k_, coefficient_bound_bits(diag));
   }
 
   void flint_charpoly(fmpz_poly_t q, const fmpz_mat_t G) {
@@ -772,14 +1040,10 @@ class SpectrumSolver {
   //      and symplectic eigenvalues are monotone and homogeneous (Bhatia & Jain,
   //      J. Math. Phys. 56, 112201 (2015)), so mu_j(t)^2 <= g^2 Y_j with Y_j the
   //      sorted upper bounds of mu_j(t-1)^2: e_i(mu^2) <= e_i(g^2 Y).
-  slong coefficient_bound_bits(const fmpz_mat_t G) {
+  slong coefficient_bound_bits(const std::vector<Arb>& diag) {
     const slong k = k_, n = 2 * k, wp = 64;
-    std::vector<Arb> diag(static_cast<std::size_t>(n));
     std::vector<const arb_struct*> dp;
-    for (slong a = 0; a < n; ++a) {
-      arb_set_fmpz(diag[static_cast<std::size_t>(a)].v, fmpz_mat_entry(G, a, a));
-      dp.push_back(diag[static_cast<std::size_t>(a)].v);
-    }
+    for (slong a = 0; a < n; ++a) dp.push_back(diag[static_cast<std::size_t>(a)].v);
     std::vector<Arb> eh;
     elementary_symmetric(eh, dp, wp);
     std::vector<Arb> eg;
@@ -915,15 +1179,13 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
     out.nu.reserve(nt);
     out.nu_radius.reserve(nt);
   }
-  LightCone lc(pr, S);
-  FmpzMat G(2 * pr.k, 2 * pr.k);
+  LightCone lc(pr, S, opt.residue_budget_bytes);
   Arb g2;
   growth_bound(g2.v, S, pr);
   SpectrumSolver solver(pr.k, pr.den.v, g2.v);
   for (std::int64_t t = 0; t <= T; ++t) {
     if (t > 0) lc.step();
-    lc.gram(G.m);
-    PointResult r = solver.evaluate(G.m, opt);
+    PointResult r = solver.evaluate(lc, opt);
     out.entropy.push_back(r.entropy);
     out.radius.push_back(r.radius);
     out.bits.push_back(lc.bits());

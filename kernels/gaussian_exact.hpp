@@ -13,13 +13,18 @@
 // exact characteristic polynomial of J_A sigma_A, an even polynomial whose
 // roots are +-i nu_j, read as q(y) = prod_j (y - mu_j^2) with mu_j = 2 Den nu_j
 // (Den the common denominator of sigma0):
-//  - q is computed multi-modularly (FLINT nmod_mat_charpoly per 62-bit prime,
-//    fmpz_comb reduction and CRT) with a rigorous coefficient bound: the
+//  - q is computed multi-modularly from the residues of G modulo 28-bit
+//    primes (multimod.hpp: the residues of R_t are updated alongside R_t, G
+//    mod p is formed from them, the characteristic polynomial of J G mod p by
+//    the division-free Berkowitz algorithm, many primes side by side in
+//    vector lanes; fmpz_comb CRT) under a rigorous coefficient bound: the
 //    smaller of Hadamard-Fischer and a growth bound from the previous step
 //    (sigma(t+1) <= g sigma(t) in the Loewner order, g = ||D^-1/2 S D^1/2||^2,
 //    and monotonicity of symplectic eigenvalues, Bhatia & Jain 2015), which
-//    is within a few primes of the true size; one more prime checks it, and
-//    on a mismatch FLINT's fmpz_mat_charpoly is used instead;
+//    is within a few primes of the true size; one more (62-bit) prime, with G
+//    mod it taken straight from the exact R_t and FLINT's nmod arithmetic,
+//    checks it, and on a mismatch FLINT's fmpz_mat_charpoly of the exact G is
+//    used instead;
 //  - Q(z) = q(z + Den^2) has roots z_j = 4 Den^2 (nu_j^2 - 1/4) >= 0, so the
 //    pure modes nu = 1/2 are exactly the factor z^m and are split off
 //    symbolically (contributing exactly 0 with radius 0);
@@ -58,6 +63,10 @@ struct EntropyOptions {
   double target_radius = 1e-12;          // certified radius wanted for every S_A(t)
   std::int64_t max_prec_bits = 1 << 15;  // give up raising precision beyond this
   bool keep_spectrum = false;            // also return every nu_j(t) (with radii)
+  // Memory (bytes, about) for the residues of R_t modulo the CRT primes. Past
+  // it (wide light cones at late times) G is formed exactly each t and then
+  // reduced: the same result, slower.
+  std::int64_t residue_budget_bytes = std::int64_t{256} << 20;
   // Reference path for cross-checks (slow): FLINT's fmpz_mat_charpoly and
   // arb_fmpz_poly_complex_roots at every t instead of the fast routes above.
   bool reference = false;

@@ -648,6 +648,16 @@ TEST(GaussianExact, FastPathMatchesFlintArbReference) {
     ref.reference = true;
     const EntropyCurve fast = gaussian_entropy_curve(c, init, region, 60, fast_opt);
     const EntropyCurve slow = gaussian_entropy_curve(c, init, region, 60, ref);
+    // No room for residues of R: G by big-integer dot products instead of the
+    // multi-modular lanes. Both are the same exact G, so everything after it
+    // must agree to the bit.
+    EntropyOptions dot_opt = fast_opt;
+    dot_opt.residue_budget_bytes = 0;
+    const EntropyCurve dot = gaussian_entropy_curve(c, init, region, 60, dot_opt);
+    EXPECT_EQ(fast.entropy, dot.entropy);
+    EXPECT_EQ(fast.radius, dot.radius);
+    EXPECT_EQ(fast.charpoly_fallbacks, 0);  // the guard prime never disagreed
+    EXPECT_EQ(dot.charpoly_fallbacks, 0);
     expect_certified(fast);
     for (std::size_t t = 0; t < fast.entropy.size(); ++t) {
       EXPECT_TRUE(overlap(fast.entropy[t], fast.radius[t], slow.entropy[t], slow.radius[t])) << "t = " << t;
