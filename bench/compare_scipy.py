@@ -9,6 +9,7 @@ result table goes to docs/performance.md (with the machine it ran on).
 Run: /usr/bin/python3 bench/compare_scipy.py [--toral build/toral] [--quick]
 """
 import argparse
+import multiprocessing
 import os
 import pathlib
 import platform
@@ -110,11 +111,82 @@ def scipy_top(m, k):
     return np.sort(ex)[::-1][:k], dt
 
 
+# Accuracy the scipy side is asked for on the clean chain: issue 3's "lambda_max to 1e-10". toral is asked
+# for 1e-12 (CLEAN_OPEN), a tighter tolerance than scipy gets here.
+CLEAN_TOL = 1e-10
+# Generic target for the clean chain: POWER_STEPS normalised power steps from a random start (ARPACK's own
+# default start), the norm-ratio estimate ||M x|| / ||x||, and sigma = POWER_MARGIN x that estimate.
+# Shift-invert eigs returns the eigenvalue nearest sigma, so sigma must lie above lambda_max; power steps
+# approach the top from below, and on this clustered top they do so slowly (measured on the exported
+# matrices: 40 steps leave the estimate 0.6% low at L = 1e4 and at L = 1e5). sigma = the estimate itself,
+# or 1.001 x it, lies inside the band and eigs then returns an interior eigenvalue (lambda off by 5e-3 at
+# L = 1e4), so 1.01 is the smallest round margin that gives the right value. The guaranteed upper bound,
+# the Gershgorin / infinity-norm bound 7, is the other textbook choice; it is slower (13 s instead of 1.1 s
+# at L = 1e4), so it is not used.
+POWER_STEPS = 40
+POWER_MARGIN = 1.01
+
+
+def power_estimate(m, steps=POWER_STEPS, seed=0):
+    x = np.random.default_rng(seed).standard_normal(m.shape[0])
+    x /= np.linalg.norm(x)
+    est = 0.0
+    for _ in range(steps):
+        y = m @ x
+        est = float(np.linalg.norm(y))
+        x = y / est
+    return est
+
+
 def scipy_shift_invert(m, sigma):
+    """lambda_max = log of the top modulus of M by one shift-invert eigs. That is lambda_max of S = M (+) M^-T
+    only because spec(M) of this gate is closed under mu -> 1/mu (checked by inverse_closure)."""
     t0 = time.perf_counter()
-    vals = sla.eigs(m, k=1, sigma=sigma, which="LM", return_eigenvectors=False, tol=1e-12)
+    vals = sla.eigs(m, k=1, sigma=sigma, which="LM", return_eigenvectors=False, tol=CLEAN_TOL)
     dt = time.perf_counter() - t0
     return float(np.max(np.log(np.abs(vals)))), dt
+
+
+def scipy_generic(m):
+    """The script a user without toral's band edge writes: a power-step estimate, then shift-invert there.
+    The power steps are part of the timed script."""
+    t0 = time.perf_counter()
+    est = power_estimate(m)
+    lam, _ = scipy_shift_invert(m, POWER_MARGIN * est)
+    return lam, time.perf_counter() - t0, est
+
+
+def _child(conn, fn, args):
+    try:
+        conn.send(("ok", fn(*args)))
+    except Exception as e:  # recorded in the table, not hidden
+        conn.send(("error", f"{type(e).__name__}: {e}"))
+
+
+def capped(cap, fn, *args):
+    """fn(*args) in a forked process (the matrix is inherited, not copied through a pipe); ("timeout", cap)
+    if it has not returned within cap seconds, so a slow eigs cannot hang the bench."""
+    ctx = multiprocessing.get_context("fork")
+    recv, send = ctx.Pipe(duplex=False)
+    p = ctx.Process(target=_child, args=(send, fn, args))
+    p.start()
+    out = recv.recv() if recv.poll(cap) else ("timeout", cap)
+    if p.is_alive():
+        p.terminate()
+    p.join()
+    return out
+
+
+CLOSURE_L = 200
+
+
+def inverse_closure(toral, cfg_text, work, L=CLOSURE_L):
+    """Relative difference between max|mu| and max 1/|mu| over spec(M), dense numpy eigvals at a small L.
+    If it is at rounding level, the top of spec(M) is the top of spec(S) = spec(M) u 1/spec(M)."""
+    t = work / "closure.toml"
+    t.write_text(cfg_text.format(L=L, ranks=1))
+    mod = np.abs(np.linalg.eigvals(export(toral, t, work, "closure").toarray()))
+    return abs(mod.max() - 1 / mod.min()) / mod.max()
 
 
 def main():
@@ -123,6 +195,8 @@ def main():
     ap.add_argument("--ranks", type=int, default=2)
     ap.add_argument("--quick", action="store_true", help="smaller sizes (a smoke run, not the table)")
     ap.add_argument("--out", default=str(ROOT / "docs" / "performance.md"))
+    ap.add_argument("--scipy-cap", type=float, default=300.0,
+                    help="wall-clock cap in seconds on each clean-chain scipy script (reported, not a ratio)")
     a = ap.parse_args()
     big = 10**5 if a.quick else 10**6
     clean_L = 10**4 if a.quick else 10**5
@@ -136,15 +210,32 @@ def main():
         k = min(len(ref), len(t["exponents"]))
         agree = float(np.max(np.abs(ref[:k] - t["exponents"][:k])))
         rows.append(("disordered chain, top 16", big, t["wall"], t["solver"], t["rss"], dt, agree))
-        # 2. clean open chain of [[2,1],[1,1]], lambda_max
+        # 2. clean open chain of [[2,1],[1,1]], lambda_max: one toral run, two scipy scripts
         t = toral_run(a.toral, CLEAN_OPEN.format(L=clean_L, ranks=a.ranks), work, "clean", a.ranks)
         m = export(a.toral, t["cfg"], work, "clean")
-        sigma = float(np.exp(t["bulk"])) * (1 + 1e-8)  # just beyond the bulk band edge
-        ref1, dt = scipy_shift_invert(m, sigma)
-        rows.append(("clean open chain, lambda_max", clean_L, t["wall"], t["solver"], t["rss"], dt,
-                     abs(ref1 - t["exponents"][0])))
+        lam = t["exponents"][0]
+        toral_cols = (clean_L, t["wall"], t["solver"], t["rss"])
+        closure = inverse_closure(a.toral, CLEAN_OPEN, work)
         lines.append(f"clean open chain: toral reported {t['cluster']} values within the cluster tolerance of "
-                     f"lambda_max (a band edge).")
+                     f"lambda_max (a band edge). The scipy side runs one eigs on M; for this gate that is "
+                     f"lambda_max of S, since spec(M) is closed under mu -> 1/mu: at L = {CLOSURE_L} numpy's eigvals of M "
+                     f"give max|mu| and max 1/|mu| equal to {closure:.1e} relative.")
+        est = power_estimate(m)  # for the report; the generic script recomputes it inside its timing
+        lines.append(f"generic target: {POWER_STEPS} power steps estimate e^lambda_max as {est:.6f} "
+                     f"({est / np.exp(lam) - 1:.1e} relative to toral's value), sigma = {POWER_MARGIN} x that.")
+        sigma = float(np.exp(t["bulk"])) * (1 + 1e-8)  # just beyond the bulk band edge
+        for label, fn, args in (("generic target", scipy_generic, (m,)),
+                                ("informed target (toral's band edge)", scipy_shift_invert, (m, sigma))):
+            status, res = capped(a.scipy_cap, fn, *args)
+            name = f"clean open chain, lambda_max; scipy {label}"
+            if status != "ok":  # no time and no ratio for a script that did not finish
+                why = f"did not converge in {a.scipy_cap:g} s" if status == "timeout" else f"failed: {res}"
+                rows.append((name, *toral_cols, why, None))
+                print(f"{name}: {why}", flush=True)
+                continue
+            rows.append((name, *toral_cols, res[1], abs(res[0] - lam)))
+            print(f"{name}: {res[1]:.2f} s, lambda_max {res[0]:.15f}, toral {lam:.15f}, "
+                  f"difference {res[0] - lam:.1e}", flush=True)
         # 3. time versus L
         sizes = [10**4, 3 * 10**4, 10**5] + ([] if a.quick else [3 * 10**5, 10**6])
         times = []
@@ -161,22 +252,33 @@ def main():
             "Measured by `bench/compare_scipy.py` in one run, toral and the equivalent scipy script side by side on "
             "the same exported integer matrices (toral: `mpiexec -n %d toral run`, method krylov; scipy %s "
             "`scipy.sparse.linalg.eigs`, one process: for the top of S = M (+) M^-T it merges eigs(M, which='LM') "
-            "with the shift-invert eigs(M, sigma=0); for the clean chain one shift-invert eigs with sigma just beyond "
-            "the bulk band edge that toral reports). Ratios are scipy time / toral solver time." %
-            (a.ranks, scipy.__version__), "",
+            "with the shift-invert eigs(M, sigma=0); for the clean chain two scripts, each one shift-invert "
+            "eigs(M, k=1, sigma, tol=%g): the generic target, sigma = %g x an estimate from %d power steps on M, "
+            "and the informed target, sigma just beyond the bulk band edge that toral reports). Ratios are scipy "
+            "time / toral solver time." % (a.ranks, scipy.__version__, CLEAN_TOL, POWER_MARGIN, POWER_STEPS), "",
             f"Machine: {cpu}, {os.cpu_count()} cores, Python {platform.python_version()}, numpy {np.__version__}.",
             "", "| case | L | toral wall (s) | toral solver (s) | toral max RSS per rank (MiB) | scipy (s) | ratio | max |difference| |",
             "|---|---|---|---|---|---|---|---|"]
     for name, L, wall, solver, rss, sp, agree in rows:
-        text.append(f"| {name} | {L:.0e} | {wall:.2f} | {solver:.2f} | {rss:.0f} | {sp:.2f} | {sp / solver:.1f}x | {agree:.1e} |")
+        if isinstance(sp, str):  # did not converge within the cap, or failed
+            text.append(f"| {name} | {L:.0e} | {wall:.2f} | {solver:.2f} | {rss:.0f} | {sp} | - | - |")
+        else:
+            text.append(f"| {name} | {L:.0e} | {wall:.2f} | {solver:.2f} | {rss:.0f} | {sp:.2f} | {sp / solver:.1f}x "
+                        f"| {agree:.1e} |")
     text += ["", *lines, "", "Solver time versus L (disordered chain, top 16): " +
              ", ".join(f"L = {L:.0e}: {s:.3f} s" for L, s in zip(sizes, times)) +
              f"; fitted power {power:.2f}.", "",
-             "Notes. The scipy side of the clean chain gets toral's bulk band edge as its shift, the best target "
-             "there is; with a poorer target scipy's shift-invert takes far longer (61.9 s for one value at L = 1e5 "
-             "was measured on this machine earlier with another target), and plain which='LM' does not converge "
-             "there at all. Timings on this 2-core machine move by up to 2-3x with other load; rerun the script "
-             "to compare on your own hardware.", ""]
+             "Notes. The two clean-chain rows share one toral run. The generic-target row is the script a scipy "
+             "user writes without toral: shift-invert eigs returns the eigenvalue nearest sigma, so sigma has to lie "
+             "above lambda_max, and power steps approach this clustered top from below and slowly; the margin %g is "
+             "the smallest round factor that clears their error (sigma at the estimate itself lands inside the band "
+             "and eigs returns an interior eigenvalue). The informed-target row hands scipy toral's own result, the "
+             "Bloch band edge of the bulk, the best shift there is: it times scipy's shift-invert once the hard part "
+             "is done, not a script scipy alone could run. Issue 3 quotes 61.9 s for a shift-invert eigs at L = 1e5 "
+             "and plain which='LM' not converging even at L = 1e4. Each clean-chain scipy script runs in a child "
+             "process capped at %g s; one that has not returned by then is reported as not converged, with no "
+             "ratio. Timings on this 2-core machine move by up to 2-3x with other load; rerun the script to compare "
+             "on your own hardware." % (POWER_MARGIN, a.scipy_cap), ""]
     pathlib.Path(a.out).write_text("\n".join(text))
     print("\n".join(text))
 
