@@ -482,6 +482,67 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
   finish();
 }
 
+EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
+  EntanglementEstimate est;
+  const EntanglementSpec& E = c.entanglement;
+  if (!E.enabled) return est;
+  const GateSource gs = gate_source(c, p);
+  if (!gs.time_periodic) return est;  // NaN curves, nothing computed
+  Circuit circ = materialize(gs);
+  circ.validate();
+  const std::int64_t L = circ.L, T = E.periods;
+  using clk = std::chrono::steady_clock;
+  auto seconds = [](auto&& f) {
+    const auto t0 = clk::now();
+    f();
+    return std::chrono::duration<double>(clk::now() - t0).count();
+  };
+  // Gaussian: cost(T) ~ a T + b T^2 through (T1, c1) and (T2, c2).
+  constexpr std::int64_t kG1 = 16, kG2 = 48;
+  if (E.gaussian) {
+    const std::vector<GaussianSite> init = gaussian_initial(E, L);
+    for (const EntanglementRegion& reg : E.regions) {
+      if (reg.sites.back() >= L) continue;
+      if (T <= kG2) {
+        est.gaussian_s += seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, T); });
+        continue;
+      }
+      const double c1 = seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, kG1); });
+      const double c2 = seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, kG2); });
+      const double t1 = kG1, t2 = kG2, t = static_cast<double>(T);
+      double b = (c2 / t2 - c1 / t1) / (t2 - t1);
+      double a = c1 / t1 - b * t1;
+      if (b < 0) {  // noise: no visible growth, linear through the longer run
+        b = 0;
+        a = c2 / t2;
+      }
+      est.gaussian_s += std::max(a, 0.0) * t + b * t * t;
+    }
+    est.bytes += 2.0 * 8.0 * static_cast<double>(E.regions.size()) * static_cast<double>(T + 1);
+  }
+  if (!E.stabilizer_dims.empty()) {
+    const std::vector<StabilizerSite> init = stabilizer_initial(E, L);
+    constexpr std::int64_t kS = 24;
+    const std::int64_t Tp = std::min(T, kS);
+    const double scale = Tp > 0 ? static_cast<double>(T) / static_cast<double>(Tp) : 1.0;
+    for (const std::int64_t N : E.stabilizer_dims) {
+      for (const EntanglementRegion& reg : E.regions) {
+        if (reg.sites.back() >= L) continue;
+        est.stabilizer_s +=
+            scale * seconds([&] { (void)stabilizer_entropy_curve(circ, N, init, reg.sites, Tp); });
+      }
+      if (E.profile)
+        est.stabilizer_s +=
+            scale * seconds([&] { (void)stabilizer_profile(circ, N, init, Tp, std::min(E.profile_stride, std::max<std::int64_t>(Tp, 1))); });
+    }
+    est.bytes += 8.0 * static_cast<double>(E.stabilizer_dims.size() * E.regions.size()) * static_cast<double>(T + 1);
+    if (E.profile)
+      est.bytes += 8.0 * static_cast<double>(E.stabilizer_dims.size()) *
+                   static_cast<double>(E.periods / E.profile_stride + 1) * static_cast<double>(L + 1);
+  }
+  return est;
+}
+
 // ---------------------------------------------------------------- output
 
 namespace {

@@ -68,6 +68,18 @@ EntanglementAxes entanglement_axes(const Config& c);
 // NaN curves (the kernels take one time-periodic circuit).
 void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
 
+// `toral check`: about how long compute_entanglement takes for point `p`
+// (seconds), and the bytes its curves need, measured by running the kernels
+// on the point itself for a few short T and extrapolating: a Gaussian curve's
+// per-period cost grows about linearly with t (its exact integers do), so T
+// periods cost ~ a T + b T^2, fitted to two short runs; stabilizer curves
+// and profiles cost the same every period, so ~ T. Runs of T <= the probe
+// lengths are timed as they are. All zero without the table.
+struct EntanglementEstimate {
+  double gaussian_s = 0, stabilizer_s = 0, bytes = 0;
+};
+EntanglementEstimate estimate_entanglement(const Config& c, const Point& p);
+
 // `toral point`: the /entanglement values of `r` as JSON members (each
 // starting with ",\n  ", to follow the existing members), or a short table.
 void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r, bool json);

@@ -217,6 +217,7 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   struct Class {
     long long count = 0;
     double seconds = 0, bytes = 0, flops = 0;
+    double ent_seconds = 0;  // exact entanglement curves, probed on the class's first point
   };
   // (sweep, L, method) -> cost class
   std::map<std::tuple<int, std::int64_t, std::string>, Class> classes;
@@ -231,24 +232,30 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     if (sw.redrawn && m != Method::Tangent) ok = false;
     const std::string name = !ok ? "unsolvable" : method_name(m);
     Class& k = classes[{p.sweep, p.L, name}];
-    ++k.count;
+    if (++k.count > 1) continue;  // every point of a class costs about the same: cost its first
+    double ent_bytes = 0;
+    if (c.entanglement.enabled) {
+      const EntanglementEstimate e = estimate_entanglement(c, p);
+      k.ent_seconds = e.gaussian_s + e.stabilizer_s;
+      ent_bytes = e.bytes;
+    }
     const double L = static_cast<double>(p.L);
     const double dim = pos ? L : 2 * L;
     const double gates = 400.0 * L;  // gates, exponents and sort buffers
     k.flops = estimated_flops(c, p);
     if (m == Method::Dense) {
       k.seconds = k.flops / probe.dense_flops_per_s;
-      k.bytes = 4 * 8.0 * dim * dim + gates;  // A, left and right vectors, work
+      k.bytes = ent_bytes + 4 * 8.0 * dim * dim + gates;  // A, left and right vectors, work
     } else if (distributed_method(m)) {
       // per rank of a group: the Krylov basis (2K + 15 vectors) or the k
       // tangent vectors, the sparse operator and a banded LU of bandwidth ~8
       const double vecs = m == Method::Krylov ? 2.0 * static_cast<double>(c.spectrum.krylov.count) + 15
                                               : 2.0 * static_cast<double>(c.spectrum.tangent.count) + 4;
-      k.bytes = dim * (8.0 * vecs + 8 * 24 + 8 * 40) / group;
+      k.bytes = ent_bytes + dim * (8.0 * vecs + 8 * 24 + 8 * 40) / group;
       k.seconds = k.flops / probe.dense_flops_per_s / group;
     } else {
       k.seconds = L * probe.bloch_s_per_site + probe.bulk_s;
-      k.bytes = gates;
+      k.bytes = ent_bytes + gates;
     }
   }
   os << c.source << ": valid, " << points.size() << " points in " << c.sweeps.size() << " sweep"
@@ -256,7 +263,9 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   os << "  probe on this machine: dense " << num(probe.dense_flops_per_s / 1e9, 3) << " Gflop/s, bloch "
      << num(probe.bloch_s_per_site * 1e9, 3) << " ns/site" << "\n";
   os << "  " << std::left << std::setw(16) << "sweep" << std::right << std::setw(10) << "L" << std::setw(12) << "method"
-     << std::setw(9) << "points" << std::setw(12) << "s/point" << std::setw(12) << "memory" << std::setw(12) << "Gflop" << "\n";
+     << std::setw(9) << "points" << std::setw(12) << "s/point" << std::setw(12) << "memory" << std::setw(12) << "Gflop";
+  if (c.entanglement.enabled) os << std::setw(14) << "entangle s";
+  os << "\n";
   double total_s = 0, total_flops = 0, worst = 0;
   long long unsolvable = 0;
   std::string worst_where;
@@ -264,12 +273,14 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     const auto& [sw, L, name] = key;
     os << "  " << std::left << std::setw(16) << c.sweeps[static_cast<std::size_t>(sw)].name << std::right << std::setw(10)
        << L << std::setw(12) << name << std::setw(9) << k.count << std::setw(12) << num(k.seconds, 3) << std::setw(12)
-       << bytes_str(k.bytes) << std::setw(12) << num(k.flops * k.count / 1e9, 3) << "\n";
+       << bytes_str(k.bytes) << std::setw(12) << num(k.flops * k.count / 1e9, 3);
+    if (c.entanglement.enabled) os << std::setw(14) << num(k.ent_seconds, 3);
+    os << "\n";
     if (name == "unsolvable") {
       unsolvable += k.count;
       continue;
     }
-    total_s += k.seconds * k.count;
+    total_s += (k.seconds + k.ent_seconds) * k.count;
     total_flops += k.flops * k.count;
     if (k.bytes > worst) {
       worst = k.bytes;

@@ -351,3 +351,53 @@ def test_bad_entanglement_config_is_one_located_line(tmp_path, run_toral, case):
     one_line_error(run_toral("run", cfg, "-o", out), fragment)
     one_line_error(run_toral("check", cfg), fragment)
     assert not out.exists()
+
+
+def check_table(stdout):
+    """The cost rows of `toral check`: {(sweep, L): (s/point, entangle s)} (columns: sweep, L, method,
+    points, s/point, memory as a number and a unit, Gflop, entangle s)."""
+    rows, header = {}, None
+    for line in stdout.splitlines():
+        f = line.split()
+        if f[:2] == ["sweep", "L"]:
+            header = f
+        elif header and len(f) == 9 and f[1].isdigit():
+            rows[(f[0], int(f[1]))] = (float(f[4]), float(f[8]))
+    return header, rows
+
+
+def test_check_estimates_the_entanglement_cost(tmp_path, run_toral):
+    # The curves are probed on each class's own first point: the estimate is
+    # there, finite and positive, and grows with T (exact integers grow with t,
+    # so ten times the periods cost far more than twice as much; a wide margin,
+    # not a timing claim).
+    text = """
+[[sweep]]
+name = "kicked"
+sites = 16
+[sweep.bond]
+family = "shear2"
+a = 1
+b = 1
+[sweep.site]
+family = "cat"
+a = 2
+b = 1
+[entanglement]
+periods = {T}
+regions = [4]
+gaussian = true
+stabilizer_dims = [2]
+"""
+    est = {}
+    for T in (30, 300):
+        p = run_toral("check", write(tmp_path, text.replace("{T}", str(T)), f"c{T}.toml"), check=True)
+        header, rows = check_table(p.stdout)
+        assert header is not None and header[-2:] == ["entangle", "s"], p.stdout
+        (spectrum_s, ent_s), = rows.values()
+        assert math.isfinite(ent_s) and ent_s > 0
+        est[T] = ent_s
+    assert est[300] > 2 * est[30], est
+    # Without the table there is no such column.
+    p = run_toral("check", write(tmp_path, text.split("[entanglement]")[0], "plain.toml"), check=True)
+    assert "entangle" not in p.stdout
