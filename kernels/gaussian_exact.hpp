@@ -28,12 +28,17 @@
 //  - Q(z) = q(z + Den^2) has roots z_j = 4 Den^2 (nu_j^2 - 1/4) >= 0, so the
 //    pure modes nu = 1/2 are exactly the factor z^m and are split off
 //    symbolically (contributing exactly 0 with radius 0);
-//  - the remaining roots are certified real, positive and isolated with arb
-//    (Newton-polygon starting points, Durand-Kerner sweeps,
-//    _acb_poly_validate_roots, _acb_poly_validate_real_roots) to p relative
-//    bits; isolation of all roots proves Q squarefree, and only when it fails
-//    is Q squarefree-factored (FLINT) to find repeated nu's, with
-//    arb_fmpz_poly_complex_roots as the last fallback. p = 64 + 2 ceil(log2(k+1))
+//  - the remaining roots are certified real, positive and isolated to p
+//    relative bits: approximations by Durand-Kerner in double mantissas with
+//    64-bit exponents (the roots span thousands of binary orders), Newton
+//    steps on the terms that matter near each root, then a proof by exact
+//    integer signs of Q at the dyadic ends of d disjoint intervals (d sign
+//    changes of a degree-d polynomial: one simple root in each, so Q is
+//    squarefree). When that fails Q is squarefree-factored (FLINT) to find
+//    repeated nu's and the parts are tried again, then arb's path
+//    (Newton-polygon starts, Durand-Kerner, _acb_poly_validate_roots and
+//    _acb_poly_validate_real_roots), with arb_fmpz_poly_complex_roots as the
+//    last fallback. p = 64 + 2 ceil(log2(k+1))
 //    at first: a relative error e of z moves f by at most ~e, so this is
 //    ~1e-19 per mode; p doubles until the entropy's radius meets the target
 //    (or max_prec_bits).
