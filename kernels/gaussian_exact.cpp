@@ -1129,16 +1129,29 @@ class SpectrumSolver {
     // squarefree: that is proven when all its roots come out isolated, so the
     // (costly, big-coefficient) squarefree factorisation is done only when
     // that fails or for the reference path.
+    // Repeated nu's (symmetric regions) make Q a perfect square more often
+    // than not: an exact square root (FLINT, verified) is far cheaper than
+    // the squarefree factorisation, which is the next step if the root of
+    // the square still does not isolate.
     PolyFactor fac;
-    bool factored = false;
+    FmpzPoly half;
+    int factored = 0;  // 0: Q itself, 1: Q = half^2, 2: squarefree factorisation
     std::vector<std::pair<const fmpz_poly_struct*, slong>> parts = {{Q.p, 1}};
     auto factor = [&]() {
-      fmpz_poly_factor_squarefree(fac.f, Q.p);
       parts.clear();
+      if (factored == 0 && fmpz_poly_degree(Q.p) % 2 == 0 && fmpz_poly_sqrt(half.p, Q.p)) {
+        parts.emplace_back(half.p, 2);
+        factored = 1;
+        return;
+      }
+      fmpz_poly_factor_squarefree(fac.f, Q.p);
       for (slong i = 0; i < fac.f->num; ++i) parts.emplace_back(fac.f->p + i, fac.f->exp[i]);
-      factored = true;
+      factored = 2;
     };
-    if (opt.reference) factor();
+    if (opt.reference) {
+      factored = 1;  // straight to the squarefree factorisation
+      factor();
+    }
     // Each root z with relative error 2^-prec moves S by at most ~2^-prec
     // (mode_entropy): start ~64 bits beyond the mode count, double until the
     // radius meets the target. arb_fmpz_poly_complex_roots itself raises its
@@ -1162,7 +1175,7 @@ class SpectrumSolver {
         if (opt.reference) {
           arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
         } else if (!separated_real_roots(roots.p, fi, prec)) {
-          if (!factored) {  // maybe not squarefree: factor and redo this precision
+          if (factored < 2) {  // maybe not squarefree: factor (further) and redo this precision
             factor();
             refactored = true;
             break;
