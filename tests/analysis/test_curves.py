@@ -1,0 +1,93 @@
+"""Tests of analysis/toral_curves.py on synthetic /entanglement groups
+written with h5py after docs/layout.md (no toral binary needed)."""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+
+import h5py
+import numpy as np
+import pytest
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+SCRIPT = os.path.normpath(os.path.join(HERE, "..", "..", "analysis", "toral_curves.py"))
+sys.path.insert(0, os.path.dirname(SCRIPT))
+
+import toral_curves as tc  # noqa: E402
+
+
+def write(path, *, stabilizer=True, gaussian=True):
+    P, nR, nM, T = 3, 2, 2, 10
+    t = np.arange(T + 1)
+    with h5py.File(path, "w") as f:
+        f.attrs["layout_version"] = np.int64(1)
+        f.create_dataset("points/status", data=np.zeros(P, dtype=np.int32))
+        e = f.create_group("entanglement")
+        e["t"] = t
+        e["region_size"] = np.array([1, 3])
+        e["region_sites"] = np.array([[0, -1, -1], [0, 1, 2]])
+        e["cuts"] = np.array([[2, 2], [2, -1], [1, 1]])  # region 1 does not fit point 1
+        lam = np.array([[1.0, 2.0], [0.5, np.nan], [0.25, 0.75]])
+        e["lyapunov_rate"] = lam
+        if gaussian:
+            S = lam[:, :, None] * t[None, None, :]
+            e["gaussian/entropy"] = S
+            e["gaussian/radius"] = np.full(S.shape, 1e-13)
+            e["gaussian/slope"] = lam
+            e["gaussian/slope_over_lyapunov"] = np.where(np.isfinite(lam), 1.0, np.nan)
+        if stabilizer:
+            e["stabilizer/local_dim"] = np.array([2, 3])
+            cap = np.log(np.array([2, 3]))[None, :, None] * np.ones((P, nM, nR))
+            e["stabilizer/cap"] = cap
+            e["stabilizer/lightcone_rate"] = 2 * cap
+            e["stabilizer/entropy"] = np.minimum(0.1 * t[None, None, None, :], cap[..., None])
+            e["stabilizer/slope"] = np.full((P, nM, nR), 0.05)
+            e["stabilizer/slope_over_lyapunov"] = 0.05 / lam[:, None, :] * np.ones((P, nM, nR))
+            e["stabilizer/slope_over_lightcone"] = 0.05 / (2 * cap)
+
+
+def test_table_lists_fitting_regions_with_the_stored_ratios(tmp_path):
+    p = tmp_path / "run.h5"
+    write(p)
+    c = tc.load(str(p))
+    lines = tc.format_table(c).splitlines()
+    assert lines[0].split() == ["point", "region", "|A|", "Lambda_A", "gauss_slope", "gauss/Lambda",
+                                "N2_slope", "N2/Lambda", "N2/light", "N3_slope", "N3/Lambda", "N3/light"]
+    rows = [l.split() for l in lines[1:]]
+    assert [(r[0], r[1]) for r in rows] == [("0", "0"), ("0", "1"), ("1", "0"), ("2", "0"), ("2", "1")]
+    r = rows[1]  # point 0, region 1: Lambda 2, slope 2, ratio 1; N = 2: 0.05 / 2, 0.05 / (2 ln 2)
+    assert float(r[3]) == 2.0 and float(r[4]) == 2.0 and float(r[5]) == 1.0
+    assert float(r[7]) == pytest.approx(0.025, rel=1e-3)
+    assert float(r[8]) == pytest.approx(0.05 / (2 * np.log(2)), rel=1e-3)
+
+
+def test_plot_is_written_and_bad_input_is_one_line(tmp_path):
+    p = tmp_path / "run.h5"
+    write(p)
+    png = tmp_path / "c.png"
+    run = lambda *a: subprocess.run([sys.executable, SCRIPT, *map(str, a)], capture_output=True, text=True,
+                                    env={**os.environ, "MPLBACKEND": "Agg"})
+    r = run(p, "--point", 1, "-o", png)
+    assert r.returncode == 0, r.stderr
+    assert png.stat().st_size > 1000
+    for args, fragment in (((p, "--point", 7, "-o", png), "out of range"),
+                           ((tmp_path / "none.h5", "--table"), "no such file"),
+                           ((p,), "nothing to do")):
+        r = run(*args)
+        assert r.returncode == 2
+        assert len(r.stderr.strip().splitlines()) == 1 and fragment in r.stderr
+    bare = tmp_path / "bare.h5"
+    with h5py.File(bare, "w") as f:
+        f.attrs["layout_version"] = np.int64(1)
+    r = run(bare, "--table")
+    assert r.returncode == 2 and "no /entanglement group" in r.stderr
+
+
+def test_gaussian_only_and_stabilizer_only_files(tmp_path):
+    for kw, cols in (({"stabilizer": False}, 6), ({"gaussian": False}, 10)):
+        p = tmp_path / f"{sorted(kw)[0]}.h5"
+        write(p, **kw)
+        c = tc.load(str(p))
+        assert len(tc.format_table(c).splitlines()[0].split()) == cols
+        tc.plot_point(c, 2, str(tmp_path / "x.png"))
