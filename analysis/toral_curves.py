@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-LAYOUT_VERSION = 1
+from toral_file import open_result
 PROG = "toral_curves"
 
 
@@ -58,20 +58,7 @@ class Curves:
 
 
 def load(path: str) -> Curves:
-    if not os.path.exists(path):
-        raise CurveError(f"no such file: {path}")
-    import h5py
-
-    try:
-        f = h5py.File(path, "r")
-    except OSError:
-        raise CurveError(f"not an HDF5 file (not a toral result file): {path}") from None
-    with f:
-        if "layout_version" not in f.attrs:
-            raise CurveError(f"not a toral result file (no layout_version attribute): {path}")
-        version = int(np.asarray(f.attrs["layout_version"]).ravel()[0])
-        if version != LAYOUT_VERSION:
-            raise CurveError(f"unsupported layout_version {version} in {path} (this script reads {LAYOUT_VERSION})")
+    with open_result(path, CurveError) as f:
         if "entanglement" not in f:
             raise CurveError(f"no /entanglement group in {path} (the run had no [entanglement] table)")
         e = f["entanglement"]

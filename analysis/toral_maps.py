@@ -28,7 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-LAYOUT_VERSION = 1
+from toral_file import open_result
 ABSENT = np.iinfo(np.int64).min  # /points/<name> value of a parameter that does not apply
 QUANTITIES = ("lambda_max", "ks_density")  # datasets under /chaos that are mapped
 PROG = "toral_maps"
@@ -93,23 +93,9 @@ def _strlist(v) -> list[str]:
 def load(path: str) -> RunData:
     """Reads what the maps need from a toral result file; MapError if it is
     missing or not a toral result file of a supported layout version."""
-    if not os.path.exists(path):
-        raise MapError(f"no such file: {path}")
-    if os.path.isdir(path):
-        raise MapError(f"is a directory, not a result file: {path}")
     import h5py
 
-    try:
-        f = h5py.File(path, "r")
-    except OSError:
-        raise MapError(f"not an HDF5 file (not a toral result file): {path}") from None
-    with f:
-        if "layout_version" not in f.attrs:
-            raise MapError(f"not a toral result file (no layout_version attribute): {path}")
-        version = int(np.asarray(f.attrs["layout_version"]).ravel()[0])
-        if version != LAYOUT_VERSION:
-            raise MapError(
-                f"unsupported layout_version {version} in {path} (this script reads {LAYOUT_VERSION})")
+    with open_result(path, MapError) as f:
         need = ["points", "points/status"] + [f"chaos/{q}" for q in QUANTITIES]
         missing = [n for n in need if n not in f]
         if missing:

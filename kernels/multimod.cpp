@@ -6,6 +6,7 @@
 #include <algorithm>
 #include <stdexcept>
 #include <string>
+#include <utility>
 
 namespace toral::multimod {
 
@@ -53,6 +54,13 @@ void set_mod(Mod& m, const std::uint64_t* primes) {
   }
 }
 
+// One lane of redc below, for the few scalar conversions.
+std::uint32_t redc1(std::uint64_t x, std::uint32_t p, std::uint32_t ninv) {
+  const std::uint32_t q = static_cast<std::uint32_t>(x) * ninv;
+  const std::uint32_t u = static_cast<std::uint32_t>((x + static_cast<std::uint64_t>(q) * p) >> 32);
+  return std::min(u, u - p);
+}
+
 // x < p 2^32 -> x R^-1 mod p in [0, p).
 static inline __attribute__((always_inline)) void redc(std::uint32_t* __restrict out,
                                                        const std::uint64_t* __restrict x, const Mod& md) {
@@ -68,19 +76,18 @@ static inline __attribute__((always_inline)) void neg(std::uint32_t* __restrict 
   TORAL_LANES { out[l] = x[l] == 0 ? 0 : md.p[l] - x[l]; }
 }
 
-// out = sum_j a_j b_j over lane vectors a_j = a + j as, b_j = b + j bs
-// (element strides; a in Montgomery form, b plain; out plain).
-static inline __attribute__((always_inline)) void dot(std::uint32_t* __restrict out, const std::uint32_t* a,
-                                                      std::ptrdiff_t as, const std::uint32_t* b,
-                                                      std::ptrdiff_t bs, std::ptrdiff_t len, const Mod& md) {
+// out = sum_j a_j b_j over the lane vectors (a_j, b_j) = terms(j), j < len
+// (a_j in Montgomery form, b_j plain; out plain), reduced once per kChunk.
+template <class Terms>
+static inline __attribute__((always_inline)) void dot_terms(std::uint32_t* __restrict out, std::ptrdiff_t len,
+                                                            const Mod& md, Terms terms) {
   alignas(64) std::uint64_t acc[W];
   alignas(64) std::uint32_t res[W] = {0}, r[W];
   for (std::ptrdiff_t s = 0; s < len; s += kChunk) {
     const std::ptrdiff_t e = std::min<std::ptrdiff_t>(len, s + kChunk);
     TORAL_LANES { acc[l] = 0; }
     for (std::ptrdiff_t j = s; j < e; ++j) {
-      const std::uint32_t* aj = a + j * as;
-      const std::uint32_t* bj = b + j * bs;
+      const auto [aj, bj] = terms(j);
       TORAL_LANES { acc[l] += static_cast<std::uint64_t>(aj[l]) * bj[l]; }
     }
     redc(r, acc, md);
@@ -90,6 +97,13 @@ static inline __attribute__((always_inline)) void dot(std::uint32_t* __restrict 
     }
   }
   TORAL_LANES { out[l] = res[l]; }
+}
+
+// The strided case: a_j = a + j as, b_j = b + j bs (element strides).
+static inline __attribute__((always_inline)) void dot(std::uint32_t* __restrict out, const std::uint32_t* a,
+                                                      std::ptrdiff_t as, const std::uint32_t* b,
+                                                      std::ptrdiff_t bs, std::ptrdiff_t len, const Mod& md) {
+  dot_terms(out, len, md, [&](std::ptrdiff_t j) { return std::pair{a + j * as, b + j * bs}; });
 }
 
 // out = a b R^-1 (one Montgomery product; a b < 2^56 < p 2^32).
@@ -139,14 +153,10 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void berkowitz_bloc
       }
     }
     for (int i = 0; i <= r; ++i) to_mont(tm + i * W, t + i * W, md);
-    // cur_i = sum_j t_(i-j) prev_j, 0 <= j <= r - 1, 0 <= i - j <= r.
+    // cur_i = sum_j t_(i-j) prev_j, 0 <= j <= min(i, r - 1) (then i - j <= r).
     for (int i = 0; i <= r; ++i) {
-      const int j0 = std::max(0, i - r), j1 = std::min(i, r - 1);
-      if (j1 < j0) {
-        TORAL_LANES { cur[i * W + l] = 0; }
-        continue;
-      }
-      dot(cur + i * W, tm + (i - j0) * W, -W, prev + j0 * W, W, j1 - j0 + 1, md);
+      const int j1 = std::min(i, r - 1);  // and j >= 0 = max(0, i - r): never empty
+      dot(cur + i * W, tm + i * W, -W, prev, W, j1 + 1, md);
     }
     std::swap(prev, cur);
   }
@@ -174,34 +184,14 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void product_block(
 __attribute__((target_clones("avx512f", "avx2", "default"))) void combine_block(
     int rows, std::size_t in_cols, std::size_t out_cols, const std::int64_t* ptr, const std::int64_t* src,
     const std::int32_t* coef, const std::uint32_t* vm, const std::uint32_t* in, std::uint32_t* out,
-    std::uint32_t* gathered, const Mod& md) {
+    const Mod& md) {
   for (std::size_t o = 0; o < out_cols; ++o) {
     const std::int64_t t0 = ptr[o], nt = ptr[o + 1] - ptr[o];
-    // The coefficients of this column, gathered once for all rows.
-    for (std::int64_t t = 0; t < nt; ++t) {
-      const std::uint32_t* c = vm + static_cast<std::size_t>(coef[t0 + t]) * W;
-      TORAL_LANES { gathered[t * W + l] = c[l]; }
-    }
     for (int r = 0; r < rows; ++r) {
       const std::uint32_t* row = in + static_cast<std::size_t>(r) * in_cols * W;
-      alignas(64) std::uint64_t acc[W];
-      alignas(64) std::uint32_t res[W] = {0}, part[W];
-      for (std::int64_t s = 0; s < nt; s += kChunk) {
-        const std::int64_t e = std::min<std::int64_t>(nt, s + kChunk);
-        TORAL_LANES { acc[l] = 0; }
-        for (std::int64_t t = s; t < e; ++t) {
-          const std::uint32_t* g = gathered + t * W;
-          const std::uint32_t* b = row + static_cast<std::size_t>(src[t0 + t]) * W;
-          TORAL_LANES { acc[l] += static_cast<std::uint64_t>(g[l]) * b[l]; }
-        }
-        redc(part, acc, md);
-        TORAL_LANES {
-          const std::uint32_t v = res[l] + part[l];
-          res[l] = std::min(v, v - md.p[l]);
-        }
-      }
-      std::uint32_t* dst = out + (static_cast<std::size_t>(r) * out_cols + o) * W;
-      TORAL_LANES { dst[l] = res[l]; }
+      dot_terms(out + (static_cast<std::size_t>(r) * out_cols + o) * W, nt, md, [&](std::ptrdiff_t t) {
+        return std::pair{vm + static_cast<std::size_t>(coef[t0 + t]) * W, row + static_cast<std::size_t>(src[t0 + t]) * W};
+      });
     }
   }
 }
@@ -256,9 +246,8 @@ void combine(const Moduli& md, int rows, std::size_t in_cols, std::size_t out_co
              const std::int64_t* src, const std::int32_t* coef, const std::int64_t* values, const std::uint32_t* in,
              std::uint32_t* out) {
   check_moduli(md);
-  std::int64_t nvals = 0, maxterms = 0;
+  std::int64_t nvals = 0;
   for (std::size_t o = 0; o < out_cols; ++o) {
-    maxterms = std::max(maxterms, ptr[o + 1] - ptr[o]);
     for (std::int64_t t = ptr[o]; t < ptr[o + 1]; ++t) {
       if (src[t] < 0 || static_cast<std::size_t>(src[t]) >= in_cols)
         throw std::invalid_argument("multimod::combine: source column out of range");
@@ -266,7 +255,6 @@ void combine(const Moduli& md, int rows, std::size_t in_cols, std::size_t out_co
     }
   }
   auto vm = lanes(static_cast<std::size_t>(nvals));
-  auto gathered = lanes(static_cast<std::size_t>(maxterms));
   Mod m;
   for (std::size_t ip0 = 0; ip0 < md.np; ip0 += kLanes) {
     set_mod(m, md.primes + ip0);
@@ -277,16 +265,13 @@ void combine(const Moduli& md, int rows, std::size_t in_cols, std::size_t out_co
         std::int64_t v = values[i] % p;
         plain[l] = static_cast<std::uint32_t>(v < 0 ? v + p : v);
       }
-      for (int l = 0; l < W; ++l) {  // Montgomery form, scalar (few values)
-        const std::uint64_t x = static_cast<std::uint64_t>(plain[l]) * m.r2[l];
-        const std::uint32_t q = static_cast<std::uint32_t>(x) * m.ninv[l];
-        const std::uint32_t u = static_cast<std::uint32_t>((x + static_cast<std::uint64_t>(q) * m.p[l]) >> 32);
-        vm[static_cast<std::size_t>(i) * W + static_cast<std::size_t>(l)] = std::min(u, u - m.p[l]);
-      }
+      for (int l = 0; l < W; ++l)  // Montgomery form, scalar (few values)
+        vm[static_cast<std::size_t>(i) * W + static_cast<std::size_t>(l)] =
+            redc1(static_cast<std::uint64_t>(plain[l]) * m.r2[l], m.p[l], m.ninv[l]);
     }
     const std::size_t b = ip0 / kLanes;
     combine_block(rows, in_cols, out_cols, ptr, src, coef, vm.data(), in + b * rows * in_cols * W,
-                  out + b * rows * out_cols * W, gathered.data(), m);
+                  out + b * rows * out_cols * W, m);
   }
 }
 
@@ -313,12 +298,7 @@ void gram(const Moduli& md, int rows, std::size_t cols, const std::uint32_t* m, 
       std::uint32_t* dst = wr2.data() + i * W;
       for (int l = 0; l < W; ++l) {
         std::uint32_t x = wres[lane_index(nw, i, ip0 + static_cast<std::size_t>(l))];
-        for (int rep = 0; rep < 2; ++rep) {
-          const std::uint64_t y = static_cast<std::uint64_t>(x) * mo.r2[l];
-          const std::uint32_t q = static_cast<std::uint32_t>(y) * mo.ninv[l];
-          const std::uint32_t u = static_cast<std::uint32_t>((y + static_cast<std::uint64_t>(q) * mo.p[l]) >> 32);
-          x = std::min(u, u - mo.p[l]);
-        }
+        for (int rep = 0; rep < 2; ++rep) x = redc1(static_cast<std::uint64_t>(x) * mo.r2[l], mo.p[l], mo.ninv[l]);
         dst[l] = x;
       }
     }
@@ -327,19 +307,40 @@ void gram(const Moduli& md, int rows, std::size_t cols, const std::uint32_t* m, 
   }
 }
 
+namespace {
+
+// Work space of berkowitz_block for one n, reused across blocks of lanes.
+struct Berkowitz {
+  std::size_t n;
+  std::vector<std::uint32_t> Am, prev, cur, t, tm, v, vn;
+  explicit Berkowitz(int size)
+      : n(static_cast<std::size_t>(size)),
+        Am(lanes(n * n)),
+        prev(lanes(n + 1)),
+        cur(lanes(n + 1)),
+        t(lanes(n + 1)),
+        tm(lanes(n + 1)),
+        v(lanes(n)),
+        vn(lanes(n)) {}
+  // a: one block's n x n plain entries; out: that block's n + 1 coefficients.
+  void run(const std::uint32_t* a, std::uint32_t* out, const Mod& m) {
+    berkowitz_block(static_cast<int>(n), a, Am.data(), prev.data(), cur.data(), t.data(), tm.data(), v.data(),
+                    vn.data(), out, m);
+  }
+};
+
+}  // namespace
+
 void charpoly(const Moduli& md, int n, const std::uint32_t* a, std::uint32_t* out) {
   check_moduli(md);
   if (n < 1) throw std::invalid_argument("multimod::charpoly: n must be >= 1");
   const std::size_t un = static_cast<std::size_t>(n);
-  auto Am = lanes(un * un);
-  auto prev = lanes(un + 1), cur = lanes(un + 1), t = lanes(un + 1), tm = lanes(un + 1);
-  auto v = lanes(un), vn = lanes(un);
+  Berkowitz bk(n);
   Mod m;
   for (std::size_t ip0 = 0; ip0 < md.np; ip0 += kLanes) {
     set_mod(m, md.primes + ip0);
     const std::size_t b = ip0 / kLanes;
-    berkowitz_block(n, a + b * un * un * W, Am.data(), prev.data(), cur.data(), t.data(), tm.data(), v.data(),
-                    vn.data(), out + b * (un + 1) * W, m);
+    bk.run(a + b * un * un * W, out + b * (un + 1) * W, m);
   }
 }
 
@@ -348,16 +349,14 @@ void charpoly_of_product(const Moduli& md, int n, const std::uint32_t* z, const 
   check_moduli(md);
   if (n < 1) throw std::invalid_argument("multimod::charpoly_of_product: n must be >= 1");
   const std::size_t un = static_cast<std::size_t>(n);
-  auto Zm = lanes(un * un), P = lanes(un * un), Am = lanes(un * un);
-  auto prev = lanes(un + 1), cur = lanes(un + 1), t = lanes(un + 1), tm = lanes(un + 1);
-  auto v = lanes(un), vn = lanes(un);
+  auto Zm = lanes(un * un), P = lanes(un * un);
+  Berkowitz bk(n);
   Mod m;
   for (std::size_t ip0 = 0; ip0 < md.np; ip0 += kLanes) {
     set_mod(m, md.primes + ip0);
     const std::size_t b = ip0 / kLanes;
     product_block(n, z + b * un * un * W, x + b * un * un * W, Zm.data(), P.data(), m);
-    berkowitz_block(n, P.data(), Am.data(), prev.data(), cur.data(), t.data(), tm.data(), v.data(), vn.data(),
-                    out + b * (un + 1) * W, m);
+    bk.run(P.data(), out + b * (un + 1) * W, m);
   }
 }
 

@@ -713,14 +713,6 @@ TEST(GaussianExact, BadInputThrows) {
 
 namespace {
 
-struct Fmpz {
-  fmpz_t v;
-  Fmpz() { fmpz_init(v); }
-  ~Fmpz() { fmpz_clear(v); }
-  Fmpz(const Fmpz&) = delete;
-  Fmpz& operator=(const Fmpz&) = delete;
-};
-
 struct LaneFixture {
   std::vector<std::uint64_t> primes;
   multimod::Moduli md;
@@ -813,11 +805,12 @@ TEST(Multimod, CombineGramAndReduceMatchScalarArithmetic) {
   multimod::combine(f.md, rows, in_cols, out_cols, ptr.data(), src.data(), coef.data(), values.data(), in.data(),
                     out.data());
   // Gram of `in` with weights drawn from three fmpz values, one above 2^64.
-  Fmpz w[3];
-  fmpz_set_si(w[0].v, 1);
-  fmpz_set_si(w[1].v, 12345);
-  fmpz_set_str(w[2].v, "987654321987654321987654321", 10);
-  const fmpz* wp[3] = {w[0].v, w[1].v, w[2].v};
+  fmpz_t w[3];
+  for (auto& x : w) fmpz_init(x);
+  fmpz_set_si(w[0], 1);
+  fmpz_set_si(w[1], 12345);
+  fmpz_set_str(w[2], "987654321987654321987654321", 10);
+  const fmpz* wp[3] = {w[0], w[1], w[2]};
   std::vector<std::uint32_t> wres(3 * f.md.np);
   multimod::reduce(f.md, 0, f.md.np, wp, 3, wres.data());
   std::vector<std::int32_t> widx(in_cols);
@@ -829,7 +822,7 @@ TEST(Multimod, CombineGramAndReduceMatchScalarArithmetic) {
     const std::uint64_t p = f.primes[ip];
     std::uint64_t wm[3];
     for (int i = 0; i < 3; ++i) {
-      wm[i] = fmpz_fdiv_ui(w[i].v, p);
+      wm[i] = fmpz_fdiv_ui(w[i], p);
       ASSERT_EQ(f.at(wres, 3, static_cast<std::size_t>(i), ip), wm[i]);
     }
     for (int r = 0; r < rows; ++r)
@@ -858,6 +851,7 @@ TEST(Multimod, CombineGramAndReduceMatchScalarArithmetic) {
         ASSERT_EQ(f.at(g1, rows * rows, static_cast<std::size_t>(a * rows + b), ip), static_cast<std::uint64_t>(s1 % p));
       }
   }
+  for (auto& x : w) fmpz_clear(x);
 }
 
 TEST(Multimod, RejectsBadModuli) {
