@@ -38,7 +38,7 @@ EnsembleStats ensemble_stats(const RunAxes& axes, const std::vector<PointRecord>
     const char* units;
     const char* meaning;
   };
-  const std::vector<Spec> specs = {
+  std::vector<Spec> specs = {
       {"lambda_max", {}, [](const PointRecord& r) { return std::pair<const double*, std::size_t>(&r.lambda_max, 1); }, "1/period", "largest Lyapunov exponent"},
       {"ks_density", {}, [](const PointRecord& r) { return std::pair<const double*, std::size_t>(&r.ks_density, 1); }, "nats/(period*site)", "KS rate per site"},
       {"ks_rate", {}, [](const PointRecord& r) { return std::pair<const double*, std::size_t>(&r.ks_rate, 1); }, "nats/period", "KS rate h"},
@@ -55,6 +55,39 @@ EnsembleStats ensemble_stats(const RunAxes& axes, const std::vector<PointRecord>
       {"saturation_lightcone", {nl, nn}, [](const PointRecord& r) { return std::pair<const double*, std::size_t>(r.saturation_lightcone.data(), r.saturation_lightcone.size()); },
        "periods", "saturation time of the light-cone curve"},
   };
+  // The exact entanglement curves' summaries ([entanglement], docs/entanglement.md):
+  // per region, and per local dimension N for the stabilizer ones ([N][region],
+  // as in the records).
+  const EntanglementAxes& ea = axes.entanglement;
+  if (ea.present) {
+    const std::uint64_t nr = ea.regions(), nm = ea.local_dims.size();
+    auto vec = [](const std::vector<double>& v) { return std::pair<const double*, std::size_t>(v.data(), v.size()); };
+    specs.push_back({"entanglement_lyapunov_rate", {nr}, [vec](const PointRecord& r) { return vec(r.ent_lyapunov_rate); },
+                     "nats/period", "Lambda_|A| of each entanglement region"});
+    if (ea.gaussian) {
+      specs.push_back({"gaussian_slope", {nr}, [vec](const PointRecord& r) { return vec(r.gauss_slope); }, "nats/period",
+                       "late-time slope of the certified Gaussian S_A(t)"});
+      specs.push_back({"gaussian_slope_over_lyapunov", {nr},
+                       [vec](const PointRecord& r) { return vec(r.gauss_slope_over_lyapunov); }, "1",
+                       "Gaussian slope / Lambda_|A|"});
+    }
+    if (nm > 0) {
+      specs.push_back({"stabilizer_slope", {nm, nr}, [vec](const PointRecord& r) { return vec(r.stab_slope); },
+                       "nats/period", "late-time slope of the stabilizer S_A(t)"});
+      specs.push_back({"stabilizer_slope_over_lyapunov", {nm, nr},
+                       [vec](const PointRecord& r) { return vec(r.stab_slope_over_lyapunov); }, "1",
+                       "stabilizer slope / Lambda_|A|"});
+      specs.push_back({"stabilizer_slope_over_lightcone", {nm, nr},
+                       [vec](const PointRecord& r) { return vec(r.stab_slope_over_lightcone); }, "1",
+                       "stabilizer slope / light-cone rate"});
+      specs.push_back({"stabilizer_saturation_value", {nm, nr},
+                       [vec](const PointRecord& r) { return vec(r.stab_saturation_value); }, "nats",
+                       "max over t of the stabilizer S_A(t)"});
+      specs.push_back({"stabilizer_saturation_time", {nm, nr},
+                       [vec](const PointRecord& r) { return vec(r.stab_saturation_time); }, "periods",
+                       "first t with S_A(t) >= 0.99 of its maximum"});
+    }
+  }
   for (const auto& s : specs) {
     StatsColumn c;
     c.name = s.name;

@@ -401,3 +401,43 @@ stabilizer_dims = [2]
     # Without the table there is no such column.
     p = run_toral("check", write(tmp_path, text.split("[entanglement]")[0], "plain.toml"), check=True)
     assert "entangle" not in p.stdout
+
+
+def test_ensemble_stats_of_the_curves_match_numpy(runs):
+    # Points differing only in the seed form a group; /stats summarises the
+    # curves' slopes, ratios and saturation per region (and N) over the group's
+    # ok points, like every other quantity. numpy is the reference library.
+    _, out = runs
+    with h5py.File(out["mixed"][1]) as f:
+        names = [n for n in f["points"].attrs["parameters"] if n != "seed"]
+        pts = {n: f["points"][n][()] for n in names}
+        seed, status = f["points/seed"][()], f["points/status"][()]
+        e, st = f["entanglement"], f["stats"]
+        columns = {
+            "entanglement_lyapunov_rate": e["lyapunov_rate"][()],
+            "gaussian_slope": e["gaussian/slope"][()],
+            "gaussian_slope_over_lyapunov": e["gaussian/slope_over_lyapunov"][()],
+            "stabilizer_slope": e["stabilizer/slope"][()],
+            "stabilizer_slope_over_lightcone": e["stabilizer/slope_over_lightcone"][()],
+            "stabilizer_saturation_value": e["stabilizer/saturation_value"][()],
+            "stabilizer_saturation_time": e["stabilizer/saturation_time"][()],
+        }
+        for name in columns:
+            assert name in st, name
+        assert st["stabilizer_slope/mean"].shape[1:] == (len(DIMS), len(REGIONS))
+        checked = 0
+        for g in range(len(st["count"][()])):
+            sel = (seed != np.iinfo(np.int64).min) & (status == 0)
+            for n in names:
+                sel &= pts[n] == st[n][()][g]
+            if sel.sum() < 2:
+                continue
+            for name, data in columns.items():
+                v = data[sel]
+                with np.errstate(invalid="ignore"):
+                    np.testing.assert_allclose(st[f"{name}/mean"][g], v.mean(axis=0), rtol=1e-12, atol=1e-14,
+                                               err_msg=name)
+                    np.testing.assert_allclose(st[f"{name}/std"][g], v.std(axis=0, ddof=1), rtol=1e-10, atol=1e-13,
+                                               err_msg=name)
+            checked += 1
+        assert checked > 0
