@@ -1174,7 +1174,7 @@ class SpectrumSolver {
         AcbVec roots(deg);
         if (opt.reference) {
           arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
-        } else if (!separated_real_roots(roots.p, fi, prec)) {
+        } else if (!(opt.fast_roots && separated_real_roots(roots.p, fi, prec))) {
           if (factored < 2) {  // maybe not squarefree: factor (further) and redo this precision
             factor();
             refactored = true;

@@ -72,6 +72,9 @@ struct EntropyOptions {
   // it (wide light cones at late times) G is formed exactly each t and then
   // reduced: the same result, slower.
   std::int64_t residue_budget_bytes = std::int64_t{256} << 20;
+  // false: skip the double-mantissa root approximation with exact-sign proof
+  // and go straight to arb's isolation (for cross-checks; same enclosures).
+  bool fast_roots = true;
   // Reference path for cross-checks (slow): FLINT's fmpz_mat_charpoly and
   // arb_fmpz_poly_complex_roots at every t instead of the fast routes above.
   bool reference = false;

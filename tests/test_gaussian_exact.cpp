@@ -658,6 +658,13 @@ TEST(GaussianExact, FastPathMatchesFlintArbReference) {
     EXPECT_EQ(fast.radius, dot.radius);
     EXPECT_EQ(fast.charpoly_fallbacks, 0);  // the guard prime never disagreed
     EXPECT_EQ(dot.charpoly_fallbacks, 0);
+    // arb's root isolation instead of the exact-sign proof: the same certified
+    // values within the radii.
+    EntropyOptions arb_opt = fast_opt;
+    arb_opt.fast_roots = false;
+    const EntropyCurve arbr = gaussian_entropy_curve(c, init, region, 60, arb_opt);
+    for (std::size_t t = 0; t < fast.entropy.size(); ++t)
+      EXPECT_TRUE(overlap(fast.entropy[t], fast.radius[t], arbr.entropy[t], arbr.radius[t])) << "t = " << t;
     expect_certified(fast);
     for (std::size_t t = 0; t < fast.entropy.size(); ++t) {
       EXPECT_TRUE(overlap(fast.entropy[t], fast.radius[t], slow.entropy[t], slow.radius[t])) << "t = " << t;
