@@ -61,31 +61,41 @@ EnsembleStats ensemble_stats(const RunAxes& axes, const std::vector<PointRecord>
   const EntanglementAxes& ea = axes.entanglement;
   if (ea.present) {
     const std::uint64_t nr = ea.regions(), nm = ea.local_dims.size();
-    auto vec = [](const std::vector<double>& v) { return std::pair<const double*, std::size_t>(v.data(), v.size()); };
-    specs.push_back({"entanglement_lyapunov_rate", {nr}, [vec](const PointRecord& r) { return vec(r.ent_lyapunov_rate); },
-                     "nats/period", "Lambda_|A| of each entanglement region"});
-    if (ea.gaussian) {
-      specs.push_back({"gaussian_slope", {nr}, [vec](const PointRecord& r) { return vec(r.gauss_slope); }, "nats/period",
-                       "late-time slope of the certified Gaussian S_A(t)"});
-      specs.push_back({"gaussian_slope_over_lyapunov", {nr},
-                       [vec](const PointRecord& r) { return vec(r.gauss_slope_over_lyapunov); }, "1",
-                       "Gaussian slope / Lambda_|A|"});
-    }
-    if (nm > 0) {
-      specs.push_back({"stabilizer_slope", {nm, nr}, [vec](const PointRecord& r) { return vec(r.stab_slope); },
-                       "nats/period", "late-time slope of the stabilizer S_A(t)"});
-      specs.push_back({"stabilizer_slope_over_lyapunov", {nm, nr},
-                       [vec](const PointRecord& r) { return vec(r.stab_slope_over_lyapunov); }, "1",
-                       "stabilizer slope / Lambda_|A|"});
-      specs.push_back({"stabilizer_slope_over_lightcone", {nm, nr},
-                       [vec](const PointRecord& r) { return vec(r.stab_slope_over_lightcone); }, "1",
-                       "stabilizer slope / light-cone rate"});
-      specs.push_back({"stabilizer_saturation_value", {nm, nr},
-                       [vec](const PointRecord& r) { return vec(r.stab_saturation_value); }, "nats",
-                       "max over t of the stabilizer S_A(t)"});
-      specs.push_back({"stabilizer_saturation_time", {nm, nr},
-                       [vec](const PointRecord& r) { return vec(r.stab_saturation_time); }, "periods",
-                       "first t with S_A(t) >= 0.99 of its maximum"});
+    struct Curve {
+      const char* name;
+      bool stabilizer;  // inner shape (nM, nR) and needs stabilizer curves; else (nR,)
+      bool gaussian;    // needs Gaussian curves
+      std::vector<double> PointRecord::*field;
+      const char* units;
+      const char* meaning;
+    };
+    const Curve curves[] = {
+        {"entanglement_lyapunov_rate", false, false, &PointRecord::ent_lyapunov_rate, "nats/period",
+         "Lambda_|A| of each entanglement region"},
+        {"gaussian_slope", false, true, &PointRecord::gauss_slope, "nats/period",
+         "late-time slope of the certified Gaussian S_A(t)"},
+        {"gaussian_slope_over_lyapunov", false, true, &PointRecord::gauss_slope_over_lyapunov, "1",
+         "Gaussian slope / Lambda_|A|"},
+        {"stabilizer_slope", true, false, &PointRecord::stab_slope, "nats/period",
+         "late-time slope of the stabilizer S_A(t)"},
+        {"stabilizer_slope_over_lyapunov", true, false, &PointRecord::stab_slope_over_lyapunov, "1",
+         "stabilizer slope / Lambda_|A|"},
+        {"stabilizer_slope_over_lightcone", true, false, &PointRecord::stab_slope_over_lightcone, "1",
+         "stabilizer slope / light-cone rate"},
+        {"stabilizer_saturation_value", true, false, &PointRecord::stab_saturation_value, "nats",
+         "max over t of the stabilizer S_A(t)"},
+        {"stabilizer_saturation_time", true, false, &PointRecord::stab_saturation_time, "periods",
+         "first t with S_A(t) >= 0.99 of its maximum"},
+    };
+    for (const Curve& cv : curves) {
+      if ((cv.gaussian && !ea.gaussian) || (cv.stabilizer && nm == 0)) continue;
+      const auto field = cv.field;
+      specs.push_back({cv.name, cv.stabilizer ? std::vector<std::uint64_t>{nm, nr} : std::vector<std::uint64_t>{nr},
+                       [field](const PointRecord& r) {
+                         const std::vector<double>& v = r.*field;
+                         return std::pair<const double*, std::size_t>(v.data(), v.size());
+                       },
+                       cv.units, cv.meaning});
     }
   }
   for (const auto& s : specs) {
