@@ -25,6 +25,15 @@ constexpr int kChunk = 16;  // products summed in 64 bits before one reduction: 
 
 #define TORAL_LANES for (int l = 0; l < W; ++l)
 
+// The lane kernels are compiled for AVX-512, AVX2 and the baseline and the
+// best is picked at run time on x86-64 (GCC function multiversioning);
+// elsewhere they are compiled once for the target.
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define TORAL_LANE_CLONES __attribute__((target_clones("avx512f", "avx2", "default")))
+#else
+#define TORAL_LANE_CLONES
+#endif
+
 // Montgomery constants of one block of lanes, R = 2^32:
 // ninv = -p^-1 mod R, r2 = R^2 mod p.
 struct Mod {
@@ -129,7 +138,7 @@ std::vector<std::uint32_t> lanes(std::size_t entries) { return std::vector<std::
 // One block of lanes: a holds the plain entries (i, j) at a + (i n + j) W;
 // Am: n n lane vectors of work space; prev/cur/t/tm: n + 1, v/vn: n.
 // Writes entry c (the coefficient of x^c) of out.
-__attribute__((target_clones("avx512f", "avx2", "default"))) void berkowitz_block(
+TORAL_LANE_CLONES void berkowitz_block(
     int n, const std::uint32_t* a, std::uint32_t* Am, std::uint32_t* prev, std::uint32_t* cur, std::uint32_t* t,
     std::uint32_t* tm, std::uint32_t* v, std::uint32_t* vn, std::uint32_t* out, const Mod& md) {
   const std::size_t nn = static_cast<std::size_t>(n) * n;
@@ -168,7 +177,7 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void berkowitz_bloc
 }
 
 // P = Z X (plain) from plain z, x (one block each).
-__attribute__((target_clones("avx512f", "avx2", "default"))) void product_block(int n, const std::uint32_t* z,
+TORAL_LANE_CLONES void product_block(int n, const std::uint32_t* z,
                                                                                  const std::uint32_t* x,
                                                                                  std::uint32_t* Zm,
                                                                                  std::uint32_t* P, const Mod& md) {
@@ -181,7 +190,7 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void product_block(
           x + static_cast<std::size_t>(j) * W, xs, n, md);
 }
 
-__attribute__((target_clones("avx512f", "avx2", "default"))) void combine_block(
+TORAL_LANE_CLONES void combine_block(
     int rows, std::size_t in_cols, std::size_t out_cols, const std::int64_t* ptr, const std::int64_t* src,
     const std::int32_t* coef, const std::uint32_t* vm, const std::uint32_t* in, std::uint32_t* out,
     const Mod& md) {
@@ -196,7 +205,7 @@ __attribute__((target_clones("avx512f", "avx2", "default"))) void combine_block(
   }
 }
 
-__attribute__((target_clones("avx512f", "avx2", "default"))) void gram_block(
+TORAL_LANE_CLONES void gram_block(
     int rows, std::size_t cols, const std::uint32_t* m, const std::uint32_t* wr2, const std::int32_t* widx,
     std::uint32_t* Mm, std::uint32_t* out, const Mod& md) {
   // Mm(a, c) = w_c m(a, c) R (Montgomery form), wr2 = w R^2 per weight.

@@ -5,9 +5,9 @@
 // The primes are 28-bit (2^27 < p < 2^28) so that Montgomery arithmetic with
 // R = 2^32 lets up to 16 products of residues be summed in 64 bits before
 // one reduction (16 p^2 < p 2^32). kLanes primes are processed side by side
-// in vector lanes (the same operations on independent moduli); the kernels
-// are compiled for AVX-512, AVX2 and baseline x86-64 and pick the best at
-// run time. The characteristic polynomial uses the division-free Berkowitz
+// in vector lanes (the same operations on independent moduli); on x86-64 the
+// kernels are compiled for AVX-512, AVX2 and the baseline and pick the best
+// at run time (elsewhere once, for the target). The characteristic polynomial uses the division-free Berkowitz
 // algorithm, so no pivot can vanish for one prime and not for another.
 //
 // Layout: a "lane array" of E entries for primes ip = 0 .. np-1 (np a
