@@ -20,6 +20,7 @@
 
 #include "bloch.hpp"
 #include "model.hpp"
+#include "test_gates.hpp"
 
 namespace toral {
 namespace {
@@ -29,38 +30,11 @@ constexpr double kPi = std::numbers::pi;
 // ln((3 + sqrt 5) / 2), the exponent of Arnold's cat map [[2,1],[1,1]].
 const double kCat = std::log((3.0 + std::sqrt(5.0)) / 2.0);
 
-Mat2 m2(std::int64_t a, std::int64_t b, std::int64_t c, std::int64_t d) {
-  Mat2 m;
-  m(0, 0) = a;
-  m(0, 1) = b;
-  m(1, 0) = c;
-  m(1, 1) = d;
-  return m;
-}
+using testgates::m2;
+using testgates::two_shear;
+using testgates::coupling;
+using testgates::local_pair;
 
-// Two-shear position gate [[1,a],[0,1]] [[1,0],[b,1]] = [[1+ab, a], [b, 1]].
-Mat2 two_shear(std::int64_t a, std::int64_t b) {
-  return checked_matmul(m2(1, a, 0, 1), m2(1, 0, b, 1));
-}
-
-// The coupling p_a += q_b, p_b += q_a on (q_a, p_a, q_b, p_b).
-Mat4 coupling() {
-  Mat4 C = Mat4::identity();
-  C(1, 2) = 1;
-  C(3, 0) = 1;
-  return C;
-}
-
-// blockdiag(s, t) on (q_a, p_a) and (q_b, p_b): two one-site maps as a bond gate.
-Mat4 local_pair(const Mat2& s, const Mat2& t) {
-  Mat4 G;
-  for (int i = 0; i < 2; ++i)
-    for (int j = 0; j < 2; ++j) {
-      G(i, j) = s(i, j);
-      G(2 + i, 2 + j) = t(i, j);
-    }
-  return G;
-}
 
 Mat4 mul(const Mat4& x, const Mat4& y) { return checked_matmul(x, y); }
 

@@ -16,21 +16,15 @@
 #include "gaussian_exact.hpp"
 #include "model.hpp"
 #include "spectrum.hpp"
+#include "test_gates.hpp"
 
 using namespace toral;
 
 namespace {
 
-Mat2 m2(std::int64_t a, std::int64_t b, std::int64_t c, std::int64_t d) {
-  Mat2 m;
-  m(0, 0) = a;
-  m(0, 1) = b;
-  m(1, 0) = c;
-  m(1, 1) = d;
-  return m;
-}
+using testgates::m2;
 
-Mat2 shear(std::int64_t a, std::int64_t b) { return m2(1 + a * b, a, b, 1); }  // det 1
+Mat2 shear(std::int64_t a, std::int64_t b) { return testgates::two_shear(a, b); }  // [[1+ab, a], [b, 1]], det 1
 
 // Deterministic draw in [lo, hi] from the standardised mt19937_64 stream
 // (std::uniform_int_distribution differs between standard libraries).
@@ -43,25 +37,8 @@ std::int64_t draw(std::mt19937_64& rng, std::int64_t lo, std::int64_t hi) {
 Mat4 random_symplectic4(std::mt19937_64& rng, int steps) {
   Mat4 G = Mat4::identity();
   for (int s = 0; s < steps; ++s) {
-    Mat4 E = Mat4::identity();
     const std::int64_t c = draw(rng, 0, 1) ? 1 : -1;
-    switch (draw(rng, 0, 3)) {
-      case 0:
-        E(0, 1) = c;
-        break;  // q_a += c p_a
-      case 1:
-        E(1, 0) = c;
-        break;  // p_a += c q_a
-      case 2:
-        E(0, 3) = c;
-        E(2, 1) = c;
-        break;  // q_a += c p_b, q_b += c p_a
-      default:
-        E(1, 2) = c;
-        E(3, 0) = c;
-        break;  // p_a += c q_b, p_b += c q_a
-    }
-    G = checked_matmul(E, G);
+    G = checked_matmul(testgates::elementary_shear4(static_cast<int>(draw(rng, 0, 3)), c), G);
   }
   return G;
 }

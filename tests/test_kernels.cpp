@@ -10,6 +10,7 @@
 #include "families.hpp"
 #include "model.hpp"
 #include "spectrum.hpp"
+#include "test_gates.hpp"
 
 using namespace toral;
 
@@ -17,14 +18,7 @@ namespace {
 
 const double kCat = 0.9624236501192069;  // ln((3+sqrt 5)/2)
 
-Mat2 m2(std::int64_t a, std::int64_t b, std::int64_t c, std::int64_t d) {
-  Mat2 m;
-  m(0, 0) = a;
-  m(0, 1) = b;
-  m(1, 0) = c;
-  m(1, 1) = d;
-  return m;
-}
+using testgates::m2;
 
 Circuit uniform_position(std::int64_t L, Boundary bc, const Mat2& A) {
   Circuit c;
@@ -49,15 +43,8 @@ Mat4 random_symplectic4(std::mt19937_64& rng) {
   std::uniform_int_distribution<int> pick(0, 3), coef(-1, 1);
   Mat4 G = Mat4::identity();
   for (int step = 0; step < 4; ++step) {
-    Mat4 E = Mat4::identity();
     const int c = coef(rng) == 0 ? 1 : coef(rng);
-    switch (pick(rng)) {
-      case 0: E(0, 1) = c; break;              // q_a += c p_a
-      case 1: E(1, 0) = c; break;              // p_a += c q_a
-      case 2: E(0, 3) = c; E(2, 1) = c; break;  // q_a += c p_b, q_b += c p_a
-      default: E(1, 2) = c; E(3, 0) = c; break; // p_a += c q_b, p_b += c q_a
-    }
-    G = checked_matmul(E, G);
+    G = checked_matmul(testgates::elementary_shear4(pick(rng), c), G);
   }
   return G;
 }

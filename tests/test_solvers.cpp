@@ -25,41 +25,16 @@
 #include "model.hpp"
 #include "spectrum.hpp"
 #include "tangent.hpp"
+#include "test_gates.hpp"
 
 namespace toral {
 namespace {
 
-Mat2 m2(std::int64_t a, std::int64_t b, std::int64_t c, std::int64_t d) {
-  Mat2 m;
-  m(0, 0) = a;
-  m(0, 1) = b;
-  m(1, 0) = c;
-  m(1, 1) = d;
-  return m;
-}
+using testgates::m2;
+using testgates::two_shear;
+using testgates::coupling;
+using testgates::local_pair;
 
-// Two-shear gate [[1,a],[0,1]] [[1,0],[b,1]] = [[1+ab, a], [b, 1]] (docs/model.md).
-Mat2 two_shear(std::int64_t a, std::int64_t b) { return checked_matmul(m2(1, a, 0, 1), m2(1, 0, b, 1)); }
-
-// blockdiag(s, t) on (q_a, p_a), (q_b, p_b), a product of one-site maps.
-Mat4 local_pair(const Mat2& s, const Mat2& t) {
-  Mat4 G;
-  for (int i = 0; i < 2; ++i)
-    for (int j = 0; j < 2; ++j) {
-      G(i, j) = s(i, j);
-      G(2 + i, 2 + j) = t(i, j);
-    }
-  return G;
-}
-
-// The coupling p_a += q_b, p_b += q_a on (q_a, p_a, q_b, p_b) (symplectic:
-// a shear by the symmetric form q_a q_b).
-Mat4 coupling() {
-  Mat4 C = Mat4::identity();
-  C(1, 2) = 1;
-  C(3, 0) = 1;
-  return C;
-}
 
 // Counter-based draw in [lo, hi] (kernels/families.hpp).
 std::int64_t draw(std::uint64_t seed, std::uint64_t slot, std::uint64_t index, std::uint64_t tag,

@@ -20,6 +20,7 @@
 #include "families.hpp"
 #include "model.hpp"
 #include "stabilizer.hpp"
+#include "test_gates.hpp"
 
 using namespace toral;
 using cd = std::complex<double>;
@@ -29,14 +30,7 @@ namespace {
 
 const double kTol = 1e-9;
 
-Mat2 m2(i64 a, i64 b, i64 c, i64 d) {
-  Mat2 m;
-  m(0, 0) = a;
-  m(0, 1) = b;
-  m(1, 0) = c;
-  m(1, 1) = d;
-  return m;
-}
+using testgates::m2;
 
 // The quantum Fourier transform on one site: label (q, p) -> (-p, q).
 const Mat2 kFourier = m2(0, -1, 1, 0);
@@ -62,16 +56,9 @@ Mat4 random_symplectic4(std::mt19937_64& rng) {
   std::uniform_int_distribution<int> pick(0, 3), coef(-2, 2);
   Mat4 G = Mat4::identity();
   for (int step = 0; step < 5; ++step) {
-    Mat4 E = Mat4::identity();
     int c = coef(rng);
     if (c == 0) c = 1;
-    switch (pick(rng)) {
-      case 0: E(0, 1) = c; break;
-      case 1: E(1, 0) = c; break;
-      case 2: E(0, 3) = c; E(2, 1) = c; break;
-      default: E(1, 2) = c; E(3, 0) = c; break;
-    }
-    G = checked_matmul(E, G);
+    G = checked_matmul(testgates::elementary_shear4(pick(rng), c), G);
   }
   return G;
 }
