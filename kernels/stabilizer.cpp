@@ -767,6 +767,47 @@ bool stabilizer_site_valid(std::int64_t N, const StabilizerSite& s, std::string&
   return false;
 }
 
+namespace {
+
+bool use_howell(StabilizerMethod method, const std::vector<PrimePower>& fac) {
+  return method == StabilizerMethod::Howell || (method == StabilizerMethod::Auto && !squarefree(fac));
+}
+
+void require_squarefree(std::int64_t N, const std::vector<PrimePower>& fac) {
+  if (!squarefree(fac))
+    throw std::invalid_argument("stabilizer: method Echelon needs square-free N; N = " + std::to_string(N) +
+                                " = " + factor_string(fac));
+}
+
+// The Howell path (any N): the full stabilizer rows mod N, advanced one
+// period at a time; at(R, t) is called for t = 0..T.
+template <class At>
+void howell_periods(const Problem& P, i64 T, At at) {
+  NmodRows R(P);
+  std::vector<i64> lo(R.n()), hi(R.n());
+  for (i64 t = 0; t <= T; ++t) {
+    if (t > 0) {
+      std::fill(lo.begin(), lo.end(), 0);
+      std::fill(hi.begin(), hi.end(), R.m() - 1);
+      R.apply_period(lo, hi);
+    }
+    at(R, t);
+  }
+}
+
+// f(rows) for the rows of Pp mod the prime p: bit-packed for p = 2.
+template <class F>
+auto with_prime_rows(const Problem& Pp, i64 p, F f) {
+  if (p == 2) {
+    Gf2Rows R(Pp);
+    return f(R);
+  }
+  NmodRows R(Pp);
+  return f(R);
+}
+
+}  // namespace
+
 std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
                                              const std::vector<StabilizerSite>& init,
                                              const std::vector<std::int64_t>& region, std::int64_t T,
@@ -776,22 +817,11 @@ std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
   const std::vector<i64> cols = region_columns(region, c.L);
   const auto fac = factorize(P.N);
   std::vector<double> out(static_cast<std::size_t>(T + 1), 0.0);
-  if (method == StabilizerMethod::Howell || (method == StabilizerMethod::Auto && !squarefree(fac))) {
-    NmodRows R(P);
-    std::vector<i64> lo(R.n()), hi(R.n());
-    for (i64 t = 0; t <= T; ++t) {
-      if (t > 0) {
-        std::fill(lo.begin(), lo.end(), 0);
-        std::fill(hi.begin(), hi.end(), R.m() - 1);
-        R.apply_period(lo, hi);
-      }
-      out[t] = howell_region_nats(R, cols, fac);
-    }
+  if (use_howell(method, fac)) {
+    howell_periods(P, T, [&](NmodRows& R, i64 t) { out[t] = howell_region_nats(R, cols, fac); });
     return out;
   }
-  if (!squarefree(fac))
-    throw std::invalid_argument("stabilizer: method Echelon needs square-free N; N = " + std::to_string(N) +
-                                " = " + factor_string(fac));
+  require_squarefree(N, fac);
   // Auto: an arc becomes a prefix after rotating the sites, and its entropy
   // comes from the incremental gauge; any other region (and Echelon) from
   // ranks of the projected generators.
@@ -799,14 +829,8 @@ std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
   const i64 ell = static_cast<i64>(cols.size()) / 2;
   for (const auto& [p, e] : fac) {
     const Problem Pp = reduce_to(a0 >= 0 ? rotate(P, a0) : P, p);
-    std::vector<i64> u;
-    if (p == 2) {
-      Gf2Rows R(Pp);
-      u = a0 >= 0 ? prime_prefix_curve(R, ell, T) : prime_curve(R, cols, T);
-    } else {
-      NmodRows R(Pp);
-      u = a0 >= 0 ? prime_prefix_curve(R, ell, T) : prime_curve(R, cols, T);
-    }
+    const std::vector<i64> u = with_prime_rows(
+        Pp, p, [&](auto& R) { return a0 >= 0 ? prime_prefix_curve(R, ell, T) : prime_curve(R, cols, T); });
     const double lnp = std::log(static_cast<double>(p));
     for (i64 t = 0; t <= T; ++t) out[t] += static_cast<double>(u[t]) * lnp;
   }
@@ -823,33 +847,18 @@ std::vector<std::vector<double>> stabilizer_profile(const Circuit& c, std::int64
   const i64 rows = T / stride + 1, L = c.L;
   std::vector<std::vector<double>> out(static_cast<std::size_t>(rows),
                                        std::vector<double>(static_cast<std::size_t>(L + 1), 0.0));
-  if (method == StabilizerMethod::Howell || (method == StabilizerMethod::Auto && !squarefree(fac))) {
-    NmodRows R(P);
-    std::vector<i64> lo(R.n()), hi(R.n());
-    for (i64 t = 0; t <= T; ++t) {
-      if (t > 0) {
-        std::fill(lo.begin(), lo.end(), 0);
-        std::fill(hi.begin(), hi.end(), R.m() - 1);
-        R.apply_period(lo, hi);
-      }
+  if (use_howell(method, fac)) {
+    howell_periods(P, T, [&](NmodRows& R, i64 t) {
       if (t % stride == 0) out[t / stride] = howell_profile_nats(R, fac);
-    }
+    });
     return out;
   }
-  if (!squarefree(fac))
-    throw std::invalid_argument("stabilizer: method Echelon needs square-free N; N = " + std::to_string(N) +
-                                " = " + factor_string(fac));
+  require_squarefree(N, fac);
   const bool echelon = method == StabilizerMethod::Echelon;
   for (const auto& [p, e] : fac) {
     const Problem Pp = reduce_to(P, p);
-    std::vector<std::vector<i64>> u;
-    if (p == 2) {
-      Gf2Rows R(Pp);
-      u = prime_profile(R, T, stride, echelon);
-    } else {
-      NmodRows R(Pp);
-      u = prime_profile(R, T, stride, echelon);
-    }
+    const std::vector<std::vector<i64>> u =
+        with_prime_rows(Pp, p, [&](auto& R) { return prime_profile(R, T, stride, echelon); });
     const double lnp = std::log(static_cast<double>(p));
     for (i64 k = 0; k < rows; ++k)
       for (i64 x = 0; x <= L; ++x) out[k][x] += static_cast<double>(u[k][x]) * lnp;
