@@ -983,22 +983,29 @@ TEST(ResultFile, MissingDirectoryIsAClearError) {
   EXPECT_THROW(check_output_target(MPI_COMM_WORLD, g_dir, true), ResultFileError);  // a directory
 }
 
+// write_results must refuse (a ResultFileError naming `needle`) and leave
+// neither the output nor a temporary behind.
+void expect_write_refused(const std::string& p, const RunMeta& m, std::int64_t rows,
+                          const std::vector<PointRecord>& mine, const std::string& needle) {
+  try {
+    write_results(MPI_COMM_WORLD, p, false, make_axes(), m, rows, mine);
+    ADD_FAILURE() << "no exception for " << needle;
+  } catch (const OutputExistsError& e) {
+    ADD_FAILURE() << e.what();
+  } catch (const ResultFileError& e) {
+    EXPECT_NE(std::string(e.what()).find(needle), std::string::npos) << e.what();
+  }
+  barrier();
+  on_rank0([&] {
+    EXPECT_FALSE(output_exists(p));
+    EXPECT_TRUE(partial_files().empty());
+  });
+}
+
 TEST(ResultFile, RejectsInconsistentRecords) {
   const std::string p = scratch("bad.h5");
   auto expect_refused = [&](const std::vector<PointRecord>& mine, const std::string& needle) {
-    try {
-      write_results(MPI_COMM_WORLD, p, false, make_axes(), make_meta(), kP, mine);
-      ADD_FAILURE() << "no exception for " << needle;
-    } catch (const OutputExistsError& e) {
-      ADD_FAILURE() << e.what();
-    } catch (const ResultFileError& e) {
-      EXPECT_NE(std::string(e.what()).find(needle), std::string::npos) << e.what();
-    }
-    barrier();
-    on_rank0([&] {
-      EXPECT_FALSE(output_exists(p));
-      EXPECT_TRUE(partial_files().empty());
-    });
+    expect_write_refused(p, make_meta(), kP, mine, needle);
   };
   // a point missing
   {
@@ -1426,19 +1433,7 @@ TEST(ResultFile, RejectsBadRowsAndIndices) {
   const std::string p = scratch("badrows.h5");
   auto expect_refused = [&](const RunMeta& m, std::int64_t rows, const std::vector<PointRecord>& mine,
                             const std::string& needle) {
-    try {
-      write_results(MPI_COMM_WORLD, p, false, make_axes(), m, rows, mine);
-      ADD_FAILURE() << "no exception for " << needle;
-    } catch (const OutputExistsError& e) {
-      ADD_FAILURE() << e.what();
-    } catch (const ResultFileError& e) {
-      EXPECT_NE(std::string(e.what()).find(needle), std::string::npos) << e.what();
-    }
-    barrier();
-    on_rank0([&] {
-      EXPECT_FALSE(output_exists(p));
-      EXPECT_TRUE(partial_files().empty());
-    });
+    expect_write_refused(p, m, rows, mine, needle);
   };
   const std::int64_t rows = static_cast<std::int64_t>(kShard.size());
   // a whole-run file whose rows are not the indices
