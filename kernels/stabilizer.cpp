@@ -557,19 +557,28 @@ std::vector<i64> units_from_pivots(const std::vector<i64>& piv, i64 L) {
   return s;
 }
 
+// Advances R one period at a time with every row's full column range
+// (no gauge bookkeeping); at(t) is called for t = 0..T.
+template <class Rows, class At>
+void full_periods(Rows& R, i64 T, At at) {
+  std::vector<i64> lo(R.n()), hi(R.n());
+  for (i64 t = 0; t <= T; ++t) {
+    if (t > 0) {
+      std::fill(lo.begin(), lo.end(), 0);
+      std::fill(hi.begin(), hi.end(), R.m() - 1);
+      R.apply_period(lo, hi);
+    }
+    at(t);
+  }
+}
+
 template <class Rows>
 std::vector<std::vector<i64>> prime_profile(Rows& R, i64 T, i64 stride, bool echelon) {
   std::vector<std::vector<i64>> out;
   if (echelon) {
-    std::vector<i64> lo(R.n()), hi(R.n());
-    for (i64 t = 0; t <= T; ++t) {
-      if (t > 0) {
-        std::fill(lo.begin(), lo.end(), 0);
-        std::fill(hi.begin(), hi.end(), R.m() - 1);
-        R.apply_period(lo, hi);
-      }
+    full_periods(R, T, [&](i64 t) {
       if (t % stride == 0) out.push_back(units_from_pivots(R.echelon_pivots(), R.n()));
-    }
+    });
     return out;
   }
   Gauge<Rows> g(R);
@@ -584,17 +593,12 @@ std::vector<std::vector<i64>> prime_profile(Rows& R, i64 T, i64 stride, bool ech
 template <class Rows>
 std::vector<i64> prime_curve(Rows& R, const std::vector<i64>& cols, i64 T) {
   const i64 A = static_cast<i64>(cols.size()) / 2;
-  std::vector<i64> lo(R.n()), hi(R.n()), out;
-  for (i64 t = 0; t <= T; ++t) {
-    if (t > 0) {
-      std::fill(lo.begin(), lo.end(), 0);
-      std::fill(hi.begin(), hi.end(), R.m() - 1);
-      R.apply_period(lo, hi);
-    }
+  std::vector<i64> out;
+  full_periods(R, T, [&](i64) {
     const i64 r = R.region_rank(cols);
     if (r < A || r > std::min(R.n(), 2 * A)) internal_error("rank out of range: module not Lagrangian");
     out.push_back(r - A);
-  }
+  });
   return out;
 }
 
@@ -779,22 +783,6 @@ void require_squarefree(std::int64_t N, const std::vector<PrimePower>& fac) {
                                 " = " + factor_string(fac));
 }
 
-// The Howell path (any N): the full stabilizer rows mod N, advanced one
-// period at a time; at(R, t) is called for t = 0..T.
-template <class At>
-void howell_periods(const Problem& P, i64 T, At at) {
-  NmodRows R(P);
-  std::vector<i64> lo(R.n()), hi(R.n());
-  for (i64 t = 0; t <= T; ++t) {
-    if (t > 0) {
-      std::fill(lo.begin(), lo.end(), 0);
-      std::fill(hi.begin(), hi.end(), R.m() - 1);
-      R.apply_period(lo, hi);
-    }
-    at(R, t);
-  }
-}
-
 // f(rows) for the rows of Pp mod the prime p: bit-packed for p = 2.
 template <class F>
 auto with_prime_rows(const Problem& Pp, i64 p, F f) {
@@ -818,7 +806,8 @@ std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
   const auto fac = factorize(P.N);
   std::vector<double> out(static_cast<std::size_t>(T + 1), 0.0);
   if (use_howell(method, fac)) {
-    howell_periods(P, T, [&](NmodRows& R, i64 t) { out[t] = howell_region_nats(R, cols, fac); });
+    NmodRows R(P);  // the Howell path (any N): the full rows mod N
+    full_periods(R, T, [&](i64 t) { out[t] = howell_region_nats(R, cols, fac); });
     return out;
   }
   require_squarefree(N, fac);
@@ -848,7 +837,8 @@ std::vector<std::vector<double>> stabilizer_profile(const Circuit& c, std::int64
   std::vector<std::vector<double>> out(static_cast<std::size_t>(rows),
                                        std::vector<double>(static_cast<std::size_t>(L + 1), 0.0));
   if (use_howell(method, fac)) {
-    howell_periods(P, T, [&](NmodRows& R, i64 t) {
+    NmodRows R(P);  // the Howell path (any N): the full rows mod N
+    full_periods(R, T, [&](i64 t) {
       if (t % stride == 0) out[t / stride] = howell_profile_nats(R, fac);
     });
     return out;
