@@ -108,6 +108,28 @@ def start(cmd, **kw):
                             start_new_session=True, **kw)
 
 
+def wait_for_finished_point(journal, proc, timeout=120.0):
+    """Block until the run's journal holds at least one finished point.
+
+    A fixed sleep is a guess about the machine's speed (a slow CI machine
+    finished nothing in one second); the journal is the run's own record.
+    Its header is 8 magic + 4 version + 4 n + n hash + 8 total + 8 checksum
+    bytes (io/journal.hpp); anything beyond it is a point frame."""
+    t_end = time.time() + timeout
+    while time.time() < t_end:
+        assert proc.poll() is None, "the run ended before any point was journalled"
+        try:
+            raw = journal.read_bytes()
+        except FileNotFoundError:
+            raw = b""
+        if len(raw) >= 16:
+            header = 32 + int.from_bytes(raw[12:16], "little")
+            if len(raw) > header:
+                return
+        time.sleep(0.02)
+    raise AssertionError(f"no point finished within {timeout} s")
+
+
 @pytest.mark.parametrize("fraction", [0.01, 0.03, 0.07, 0.12, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9])
 def test_kill9_then_resume_equals_uninterrupted(tmp_path, toral, timed_reference, fraction):
     # Twelve kill moments spread over the run (fractions of the measured
@@ -154,7 +176,7 @@ def test_sigterm_gives_clean_checkpoint_and_exit_code_3(tmp_path, toral, slow_re
     cfg, ref = slow_reference
     out = tmp_path / "t.h5"
     p = start([toral, "run", str(cfg), "-o", str(out), "-q"])
-    time.sleep(1.0)
+    wait_for_finished_point(tmp_path / "t.h5.journal", p)
     t0 = time.time()
     p.send_signal(signal.SIGTERM)
     _, err = p.communicate(timeout=30)
@@ -175,7 +197,7 @@ def test_sigusr1_under_mpiexec_gives_clean_file(tmp_path, toral, slow_reference)
     cfg, ref = slow_reference
     out = tmp_path / "u.h5"
     p = start(["mpiexec", "--oversubscribe", "-n", "2", toral, "run", str(cfg), "-o", str(out), "-q"])
-    time.sleep(1.0)
+    wait_for_finished_point(tmp_path / "u.h5.journal", p)
     t0 = time.time()
     p.send_signal(signal.SIGUSR1)  # mpiexec forwards SIGUSR1 to the ranks
     _, err = p.communicate(timeout=30)
@@ -193,7 +215,7 @@ def test_resume_refuses_another_config_and_stray_journal(tmp_path, run_toral, to
     cfg, _ = slow_reference
     out = tmp_path / "s.h5"
     p = start([toral, "run", str(cfg), "-o", str(out), "-q"])
-    time.sleep(1.0)
+    wait_for_finished_point(tmp_path / "s.h5.journal", p)
     p.send_signal(signal.SIGTERM)
     p.communicate(timeout=30)
     assert p.returncode == 3
