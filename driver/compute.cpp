@@ -228,7 +228,11 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
   } catch (const std::exception& e) {
     fail(PointStatus::SolverFailed, std::string("solver: ") + e.what());
   }
-  compute_entanglement(c, p, r);  // exact entanglement dynamics: driver/entangle.cpp
+  // Exact entanglement dynamics (driver/entangle.cpp) is serial: only the
+  // group's leader, whose record is the one kept, computes it.
+  int group_rank = 0;
+  MPI_Comm_rank(group, &group_rank);
+  if (group_rank == 0) compute_entanglement(c, p, r);
   r.wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return r;
 }

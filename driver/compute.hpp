@@ -30,7 +30,8 @@ int ranks_per_point(const Config& c, const std::vector<Point>& points, int world
 int region_cuts(const Config& c, const Point& p);
 
 // `group` is the communicator of a distributed point (MPI_COMM_SELF for the
-// others); every rank of it must call with the same point.
+// others); every rank of it must call with the same point. Only the record
+// of the group's rank 0 is complete (it alone computes the entanglement).
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group = MPI_COMM_SELF);
 
 // A rough cost model (floating-point operations) used by `check`.

@@ -65,11 +65,30 @@ def test_tangent_matches_dense_within_its_error(tmp_path, run_toral):
     assert np.all(err < 0.05)
 
 
+# Exact curves beside the distributed spectrum: the group's leader computes them.
+ENT = """
+[entanglement]
+periods = 12
+regions = [2, [0, 5]]
+stabilizer_dims = [2, 3]
+[[entanglement.initial]]
+sites = { from = 0, to = 3 }
+stabilizer = "momentum"
+"""
+CURVES = ("entanglement/gaussian/entropy", "entanglement/gaussian/radius", "entanglement/stabilizer/entropy")
+
+
 def test_rank_groups_do_not_change_results(tmp_path, run_toral):
-    one, _ = run(tmp_path, run_toral, "g1", BASE.format(method="krylov", krylov="ranks_per_point = 1"), ranks=2)
-    two, _ = run(tmp_path, run_toral, "g2", BASE.format(method="krylov", krylov="ranks_per_point = 2"), ranks=2)
+    one, _ = run(tmp_path, run_toral, "g1", BASE.format(method="krylov", krylov="ranks_per_point = 1") + ENT, ranks=2)
+    two, _ = run(tmp_path, run_toral, "g2", BASE.format(method="krylov", krylov="ranks_per_point = 2") + ENT, ranks=2)
     assert np.all(one["chaos/solver/ranks"] == 1) and np.all(two["chaos/solver/ranks"] == 2)
     np.testing.assert_allclose(one["chaos/exponents"], two["chaos/exponents"], atol=1e-9, rtol=0)
+    with h5py.File(tmp_path / "g1.h5") as f1, h5py.File(tmp_path / "g2.h5") as f2:
+        for k in CURVES:
+            a, b = f1[k][()], f2[k][()]
+            assert np.isfinite(a).all(), k  # every point, region and period was computed
+            np.testing.assert_array_equal(a, b, err_msg=k)  # exact kernels: the same bits
+        assert np.all(f2["points/status"][()] == 0)
 
 
 def test_clean_open_chain_reports_its_cluster(tmp_path, run_toral):
