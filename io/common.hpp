@@ -1,11 +1,14 @@
 // Pieces of io/ shared by the result file and the resume journal that need
-// neither MPI nor HDF5: the error type and the FNV-1a-64 checksum.
+// neither MPI nor HDF5: the error type and the config hash (FNV-1a-64,
+// kernels/fnv1a.hpp).
 #pragma once
 #include <cstddef>
 #include <cstdint>
 #include <stdexcept>
 #include <string>
 #include <string_view>
+
+#include "fnv1a.hpp"  // kernels/, header-only
 
 namespace toral {
 
@@ -15,22 +18,6 @@ namespace toral {
 struct ResultFileError : std::runtime_error {
   using std::runtime_error::runtime_error;
 };
-
-constexpr std::uint64_t kFnv1a64Offset = 0xcbf29ce484222325ull;
-constexpr std::uint64_t kFnv1a64Prime = 0x100000001b3ull;
-
-// FNV-1a, 64 bit, over `n` bytes; `h` continues a running hash. (Same
-// function as toral::fnv1a64(const std::string&) of kernels/families.hpp;
-// named differently so that the two never compete in overload resolution.)
-inline std::uint64_t fnv1a64_bytes(const void* data, std::size_t n,
-                                   std::uint64_t h = kFnv1a64Offset) {
-  const auto* p = static_cast<const unsigned char*>(data);
-  for (std::size_t i = 0; i < n; ++i) {
-    h ^= p[i];
-    h *= kFnv1a64Prime;
-  }
-  return h;
-}
 
 // RunMeta::config_hash of a configuration text: FNV-1a-64 of its bytes as 16
 // lower-case hex digits, e.g. "af63bd4c8601b7df".

@@ -1,5 +1,7 @@
 #include "families.hpp"
 
+#include "fnv1a.hpp"
+
 #include <Random123/philox.h>
 
 #include <limits>
@@ -64,13 +66,6 @@ std::int64_t draw_uniform(std::uint64_t seed, std::uint64_t point_key, std::uint
   }
 }
 
-std::uint64_t fnv1a64(const std::string& s) {
-  std::uint64_t h = 14695981039346656037ULL;  // FNV-1a 64-bit offset basis
-  for (unsigned char c : s) {
-    h ^= c;
-    h *= 1099511628211ULL;
-  }
-  return h;
-}
+std::uint64_t fnv1a64(const std::string& s) { return fnv1a64_bytes(s.data(), s.size()); }
 
 }  // namespace toral

@@ -297,6 +297,15 @@ TEST(Families, ShearIsProductOfShears) {
   EXPECT_EQ(family_matrix("cat", {2, 1}), m2(2, 1, 1, 1));  // Arnold's cat
 }
 
+TEST(Draws, StreamKeyHashIsFnv1a64) {
+  // FNV-1a-64 test vectors (Fowler-Noll-Vo reference suite, from memory, and
+  // recomputed from the definition in Python;
+  // the same values are checked for io's config hash in test_journal.cpp).
+  EXPECT_EQ(fnv1a64(""), 0xcbf29ce484222325ull);
+  EXPECT_EQ(fnv1a64("a"), 0xaf63dc4c8601ec8cull);
+  EXPECT_EQ(fnv1a64("foobar"), 0x85944171f73967e8ull);
+}
+
 TEST(Draws, CounterBasedAndUniform) {
   // Same key and counter, same value, whatever was drawn before (Random123's
   // Philox is a pure function of counter and key: Salmon et al., SC11, 2011).
