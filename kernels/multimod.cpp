@@ -27,8 +27,9 @@ constexpr int kChunk = 16;  // products summed in 64 bits before one reduction: 
 
 // The lane kernels are compiled for AVX-512, AVX2 and the baseline and the
 // best is picked at run time on x86-64 (GCC function multiversioning);
-// elsewhere they are compiled once for the target.
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+// elsewhere (or with TORAL_NO_LANE_CLONES, as the baseline test build does)
+// they are compiled once for the target.
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && !defined(TORAL_NO_LANE_CLONES)
 #define TORAL_LANE_CLONES __attribute__((target_clones("avx512f", "avx2", "default")))
 #else
 #define TORAL_LANE_CLONES

@@ -12,7 +12,7 @@ PACKAGES=(
   libgsl-dev librandom123-dev
   libflint-dev libflint-arb-dev libm4ri-dev
   libtomlplusplus-dev libcli11-dev
-  googletest libgtest-dev
+  googletest libgtest-dev valgrind
   python3 python3-h5py python3-numpy python3-scipy python3-matplotlib python3-pytest
 )
 
