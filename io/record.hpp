@@ -84,7 +84,7 @@ struct PointRecord {
   std::vector<std::int64_t> params;       // same order as RunAxes::param_names
   std::int32_t status = 0;                // PointStatus
   std::string message;                    // empty when ok
-  std::int32_t method = 0;                // Method enum value (0 none, 1 bloch, 2 dense)
+  std::int32_t method = 0;                // Method enum value (0 none, 1 bloch, 2 dense, 3 krylov, 4 tangent)
   double wall_time = kNaN;                // seconds spent on this point
 
   // /chaos

@@ -694,7 +694,7 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
         h5::set_attr(ds, "labels", status_labels());
         ds.close();
         put(c, "method", H5T_STD_I32LE, H5T_NATIVE_INT32, {}, me, "",
-            "spectrum method used (attribute labels: 0 none, 1 bloch, 2 dense, 3 krylov)");
+            "spectrum method used (attribute labels: 0 none, 1 bloch, 2 dense, 3 krylov, 4 tangent)");
         ds = h5::open_dataset(g, "method");
         h5::set_attr(ds, "labels", method_labels());
         ds.close();

@@ -36,10 +36,15 @@ b = 1
 [bounds]
 regions = [1, 2, 4]
 local_dims = [2, 3]
+
+[entanglement]
+periods = 12
+regions = [2]
+stabilizer_dims = [2]
 """
 NPOINTS = 3 * 10 + 2 * 2
 
-TIMING = {"points/wall_time", "chaos/solver/wall_time"}
+TIMING = {"points/wall_time", "chaos/solver/wall_time", "entanglement/wall_time"}
 
 
 def write(tmp_path, text, name="c.toml"):

@@ -120,16 +120,27 @@ def datasets(path):
     return out, attrs
 
 
+# Exact curves too: Gaussian and stabilizer (with the profile) in the same files.
+SMALL_ENT = """
+[entanglement]
+periods = 20
+regions = [2, [0, 3]]
+stabilizer_dims = [2, 3]
+profile = true
+"""
+TIMINGS = ("points/wall_time", "chaos/solver/wall_time", "entanglement/wall_time")
+
+
 def test_one_and_two_ranks_write_identical_datasets(tmp_path, run_toral):
-    cfg = write(tmp_path, SMALL)
+    cfg = write(tmp_path, SMALL + SMALL_ENT)
     a, b = tmp_path / "a.h5", tmp_path / "b.h5"
     run_toral("run", cfg, "-o", a, "-q", ranks=1, check=True)
     run_toral("run", cfg, "-o", b, "-q", ranks=2, check=True)
     da, aa = datasets(a)
     db, ab = datasets(b)
-    assert sorted(da) == sorted(db)
+    assert sorted(da) == sorted(db) and "entanglement/gaussian/entropy" in da
     for name in da:
-        if name in ("points/wall_time", "chaos/solver/wall_time"):  # timings
+        if name in TIMINGS:
             continue
         np.testing.assert_array_equal(da[name], db[name], err_msg=name)
     assert aa.keys() == ab.keys()
