@@ -47,10 +47,23 @@ void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const 
   MPI_Reduce(&busy, &busy_max, 1, MPI_DOUBLE, MPI_MAX, 0, comm);
   if (rank != 0) return;
 
+  // min / mean / max over the points where a value exists: krylov and
+  // tangent points have no KS density (NaN), and are not averaged as such.
+  struct Range {
+    long long n = 0;
+    double lo = std::numeric_limits<double>::infinity(), hi = -lo, sum = 0;
+    void add(double x) {
+      if (std::isnan(x)) return;
+      ++n;
+      lo = std::min(lo, x);
+      hi = std::max(hi, x);
+      sum += x;
+    }
+    std::string text() const { return n ? num(lo, 4) + " / " + num(sum / n, 4) + " / " + num(hi, 4) : "-"; }
+  };
   struct Row {
-    long long points = 0, failed = 0, bloch = 0, dense = 0;
-    double lmin = std::numeric_limits<double>::infinity(), lmax = -lmin, lsum = 0;
-    double hmin = lmin, hmax = -lmin, hsum = 0;
+    long long points = 0, failed = 0, bloch = 0, dense = 0, krylov = 0, tangent = 0;
+    Range lambda, ks;
   };
   std::vector<Row> rows(c.sweeps.size());
   for (std::size_t k = 0; k + W <= all.size(); k += W) {
@@ -60,25 +73,21 @@ void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const 
       ++r.failed;
       continue;
     }
-    r.bloch += all[k + 2] == static_cast<double>(Method::Bloch);
-    r.dense += all[k + 2] == static_cast<double>(Method::Dense);
-    r.lmin = std::min(r.lmin, all[k + 3]);
-    r.lmax = std::max(r.lmax, all[k + 3]);
-    r.lsum += all[k + 3];
-    r.hmin = std::min(r.hmin, all[k + 4]);
-    r.hmax = std::max(r.hmax, all[k + 4]);
-    r.hsum += all[k + 4];
+    const auto m = static_cast<Method>(static_cast<int>(all[k + 2]));
+    r.bloch += m == Method::Bloch;
+    r.dense += m == Method::Dense;
+    r.krylov += m == Method::Krylov;
+    r.tangent += m == Method::Tangent;
+    r.lambda.add(all[k + 3]);
+    r.ks.add(all[k + 4]);
   }
-  std::printf("\n%-16s %7s %6s %6s %6s  %-28s  %-28s\n", "sweep", "points", "failed", "bloch", "dense",
+  std::printf("\n%-16s %7s %6s %6s %6s %6s %7s  %-28s  %-28s\n", "sweep", "points", "failed", "bloch", "dense",
+              "krylov", "tangent",
               "lambda_max  min / mean / max", "ks_density  min / mean / max");
   for (std::size_t i = 0; i < rows.size(); ++i) {
     const Row& r = rows[i];
-    const long long ok = r.points - r.failed;
-    auto trip = [&](double a, double s, double b) {
-      return ok ? num(a, 4) + " / " + num(s / ok, 4) + " / " + num(b, 4) : std::string("-");
-    };
-    std::printf("%-16s %7lld %6lld %6lld %6lld  %-28s  %-28s\n", c.sweeps[i].name.c_str(), r.points, r.failed,
-                r.bloch, r.dense, trip(r.lmin, r.lsum, r.lmax).c_str(), trip(r.hmin, r.hsum, r.hmax).c_str());
+    std::printf("%-16s %7lld %6lld %6lld %6lld %6lld %7lld  %-28s  %-28s\n", c.sweeps[i].name.c_str(), r.points,
+                r.failed, r.bloch, r.dense, r.krylov, r.tangent, r.lambda.text().c_str(), r.ks.text().c_str());
   }
   long long failed = 0;
   for (const auto& r : rows) failed += r.failed;

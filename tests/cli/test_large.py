@@ -47,8 +47,11 @@ def run(tmp_path, run_toral, name, text, ranks=None, extra=()):
 def test_krylov_matches_dense_top(tmp_path, run_toral):
     # dense LAPACK (dgeevx) is the reference where sizes overlap; 1e-9 as asked
     dense, _ = run(tmp_path, run_toral, "d", BASE.format(method="dense", krylov=""))
-    kry, _ = run(tmp_path, run_toral, "k", BASE.format(method="krylov", krylov=""))
+    kry, p = run(tmp_path, run_toral, "k", BASE.format(method="krylov", krylov=""))
     assert np.all(kry["points/status"] == 0), kry["points/message"]
+    # the run summary counts the krylov points and prints no NaN / inf for the KS density they lack
+    row = next(l for l in p.stdout.splitlines() if l.startswith("dis "))
+    assert row.split()[1:7] == ["2", "0", "0", "0", "2", "0"] and "nan" not in p.stdout and "inf" not in p.stdout
     assert np.all(kry["chaos/solver/method"] >= 3)
     np.testing.assert_allclose(kry["chaos/exponents"][:, :8], dense["chaos/exponents"][:, :8], atol=1e-9, rtol=0)
     assert np.all(kry["chaos/solver/residual"] < 1e-10)
