@@ -380,6 +380,18 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     r.status = static_cast<std::int32_t>(PointStatus::EntanglementFailed);
     r.message = "entanglement: " + what;
   };
+  // Cuts and the Lyapunov rate need only the lattice and the exponents: they
+  // are filled also where no curve can be computed (e.g. tangent exponents
+  // of a redrawn circuit).
+  const std::int64_t L = p.L;
+  std::vector<char> fits(nr, 0);
+  for (std::size_t k = 0; k < nr; ++k) {
+    const auto& sites = E.regions[k].sites;
+    if (sites.back() >= L) continue;  // does not fit this lattice: NaN / -1
+    fits[k] = 1;
+    r.ent_cuts[k] = boundary_cuts(sites, L, p.boundary);
+    r.ent_lyapunov_rate[k] = lyapunov_rate(r.exponents, L, static_cast<std::int64_t>(sites.size()));
+  }
   Circuit circ;
   try {
     const GateSource gs = gate_source(c, p);
@@ -393,15 +405,6 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     note(ex.what());
     finish();
     return;
-  }
-  const std::int64_t L = circ.L;
-  std::vector<char> fits(nr, 0);
-  for (std::size_t k = 0; k < nr; ++k) {
-    const auto& sites = E.regions[k].sites;
-    if (sites.back() >= L) continue;  // does not fit this lattice: NaN / -1
-    fits[k] = 1;
-    r.ent_cuts[k] = boundary_cuts(sites, L, circ.boundary);
-    r.ent_lyapunov_rate[k] = lyapunov_rate(r.exponents, L, static_cast<std::int64_t>(sites.size()));
   }
 
   if (E.gaussian) {

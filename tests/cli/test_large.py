@@ -138,10 +138,17 @@ matrix = [[2, 1], [1, 1]]
 
 def test_time_random_circuit_goes_to_tangent(tmp_path, run_toral):
     text = BASE.format(method="auto", krylov="").replace('boundary = "open"', 'boundary = "open"\ndisorder = "redrawn"')
-    res, _ = run(tmp_path, run_toral, "r", text)
+    res, _ = run(tmp_path, run_toral, "r", text + "\n[entanglement]\nperiods = 4\nregions = [2]\n")
     assert np.all(res["points/status"] == 0), res["points/message"]
     assert np.all(res["points/method"] == 4)
     assert np.all(np.isfinite(res["chaos/exponents"][:, :4]))
+    with h5py.File(tmp_path / "r.h5") as f:
+        # no curve for gates redrawn every period, but the region's cuts and its Lyapunov rate, the sum of the
+        # 2 min(2, L - 2) = 4 largest (tangent) exponents (docs/entanglement.md)
+        assert np.isnan(f["entanglement/gaussian/entropy"][()]).all()
+        assert np.all(f["entanglement/cuts"][()] == 1)  # the block {0, 1} at the open end of a chain
+        np.testing.assert_allclose(f["entanglement/lyapunov_rate"][:, 0], res["chaos/exponents"][:, :4].sum(axis=1),
+                                   rtol=1e-15, atol=0)
 
 
 def test_index_limit_is_a_config_error(tmp_path, run_toral):
