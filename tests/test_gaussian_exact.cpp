@@ -222,14 +222,17 @@ TEST(GaussianExact, CatMapTwoSitesSlopeAndS18) {
   // (Bianchi, Hackl & Yokomizo, JHEP 03 (2018) 025; cat-map exponent from
   // Arnold & Avez 1968).
   EXPECT_NEAR(r.entropy[40] - r.entropy[39], 1.9248473002384139, 1e-9);
-  // S(18) = 34.149 to the digits given (measured with an independent exact
-  // computation: the project's physics notes).
-  EXPECT_NEAR(r.entropy[18], 34.149, 5e-4);
+  // S(18) = 34.149385267514452723: mpmath at 50 digits (Debian python3-mpmath)
+  // from the exact rows of A^18 and A^-18^T in Python integers, sigma_A =
+  // diag(a^2 + b^2, c^2 + d^2)/2 with (a, b) = (24157817, 14930352),
+  // (c, d) = (9227465, -14930352), nu = sqrt(det sigma_A) and
+  // f(nu) = (nu + 1/2) ln(nu + 1/2) - (nu - 1/2) ln(nu - 1/2).
+  EXPECT_NEAR(r.entropy[18], 34.149385267514452723, 1e-12);
   EXPECT_LE(r.radius[18], 1e-12);
 
   // Why exactness matters: the same point evaluated plainly in float64 (S^t,
   // sigma_A and its Williamson value with LAPACK, then the textbook formula
-  // for f) gives 33.0 there (the project's physics notes report the same):
+  // for f) gives 33.0 there:
   // nu ~ 2.5e14 is still accurate, but (nu+1/2)ln(nu+1/2) - (nu-1/2)ln(nu-1/2)
   // cancels ~8e15 against ~8e15 at an ulp of 1.
   double max_entry = 0;
