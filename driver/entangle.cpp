@@ -485,6 +485,54 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
   finish();
 }
 
+namespace {
+
+bool squarefree_n(std::int64_t N) {
+  for (std::int64_t q = 2; q * q <= N; ++q) {
+    if (N % q) continue;
+    N /= q;
+    if (N % q == 0) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile) {
+  // The generator rows (L x 2L): bit-packed for N = 2, one 8-byte word per
+  // entry otherwise (FLINT nmod_mat; a square-free N runs its primes one
+  // after another, so the widest is what counts); the profile's echelon form
+  // is a second copy; the Howell path (N not square-free) forms up to
+  // 2L x 2L words per cut (kernels/stabilizer.cpp).
+  const double l = static_cast<double>(L);
+  const bool howell = !squarefree_n(N);
+  const double rows = N == 2 ? l * 2 * l / 8 : l * 2 * l * 8;
+  return rows * (profile ? 2 : 1) + (howell ? 2 * l * 2 * l * 8 : 0.0) + 64.0 * l;
+}
+
+double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
+                           std::size_t region_size, std::int64_t L, double residue_budget) {
+  // Extrapolated linearly from the probe at t1 < t2: the bit size of R_t's
+  // entries, its light-cone columns (at most 2L) and S_A(t).
+  auto at_T = [&](double a, double b) { return b + (b - a) * static_cast<double>(T - t2) / static_cast<double>(t2 - t1); };
+  const double bits = std::max(64.0, at_T(static_cast<double>(probe.bits[static_cast<std::size_t>(t1)]),
+                                           static_cast<double>(probe.bits[static_cast<std::size_t>(t2)])));
+  const double cols = std::min(2.0 * static_cast<double>(L),
+                               at_T(static_cast<double>(probe.columns[static_cast<std::size_t>(t1)]),
+                                    static_cast<double>(probe.columns[static_cast<std::size_t>(t2)])));
+  const double S = std::max(0.0, at_T(probe.entropy[static_cast<std::size_t>(t1)], probe.entropy[static_cast<std::size_t>(t2)]));
+  const double rows = 2.0 * static_cast<double>(region_size);
+  // kernels/gaussian_exact.cpp: R_t exactly (fmpz: limbs plus ~32 bytes);
+  // its residues modulo the primes of G (entries of 2 bits + log2 cols),
+  // up to the residue budget; G and the Berkowitz work vectors modulo the
+  // primes of the characteristic polynomial (about 2 S / ln 2 bits).
+  const double exact = rows * cols * (bits / 8 + 32);
+  const double residues = std::min(residue_budget, rows * cols * ((2 * bits + 64) / 27 + 1) * 4);
+  const double np = (2 * S / std::log(2.0) + 64) / 27 + 32;
+  const double charpoly = np * rows * rows * 4 * 4;
+  return exact + residues + charpoly;
+}
+
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
   EntanglementEstimate est;
   const EntanglementSpec& E = c.entanglement;
@@ -500,26 +548,41 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
     f();
     return std::chrono::duration<double>(clk::now() - t0).count();
   };
-  // Gaussian: cost(T) ~ a T + b T^2 through (T1, c1) and (T2, c2).
-  constexpr std::int64_t kG1 = 16, kG2 = 48;
+  double work = 0;  // the kernels run one after another: the largest working set counts
   if (E.gaussian) {
+    // cost(T) ~ a T + b T^2 (the exact integers grow linearly in bits), fitted
+    // through the last two of probes at T = 16, 32, 64, ... that stop once a
+    // probe takes kProbeSeconds (short probes are mostly jitter, which the
+    // extrapolation multiplies by (T / t2)^2) or would pass T / 2.
+    constexpr double kProbeSeconds = 0.5;
     const std::vector<GaussianSite> init = gaussian_initial(E, L);
+    const double budget = static_cast<double>(EntropyOptions{}.residue_budget_bytes);
     for (const EntanglementRegion& reg : E.regions) {
       if (reg.sites.back() >= L) continue;
-      if (T <= kG2) {
-        est.gaussian_s += seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, T); });
+      EntropyCurve cv;
+      auto probe = [&](std::int64_t t) { return seconds([&] { cv = gaussian_entropy_curve(circ, init, reg.sites, t); }); };
+      if (T <= 32) {
+        est.gaussian_s += probe(T);  // the whole curve: measured, not extrapolated
+        if (T > 0) work = std::max(work, gaussian_work_bytes(cv, T - 1, T, T, reg.sites.size(), L, budget));
         continue;
       }
-      const double c1 = seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, kG1); });
-      const double c2 = seconds([&] { (void)gaussian_entropy_curve(circ, init, reg.sites, kG2); });
-      const double t1 = kG1, t2 = kG2, t = static_cast<double>(T);
-      double b = (c2 / t2 - c1 / t1) / (t2 - t1);
-      double a = c1 / t1 - b * t1;
-      if (b < 0) {  // noise: no visible growth, linear through the longer run
+      std::int64_t t1 = 16, t2 = 32;
+      double c1 = probe(t1), c2 = probe(t2);
+      while (c2 < kProbeSeconds && 2 * t2 <= T / 2) {
+        t1 = t2;
+        c1 = c2;
+        t2 *= 2;
+        c2 = probe(t2);
+      }
+      const double x1 = static_cast<double>(t1), x2 = static_cast<double>(t2), t = static_cast<double>(T);
+      double b = (c2 / x2 - c1 / x1) / (x2 - x1);
+      double a = c1 / x1 - b * x1;
+      if (b < 0) {  // jitter: no visible growth, linear through the longer probe
         b = 0;
-        a = c2 / t2;
+        a = c2 / x2;
       }
       est.gaussian_s += std::max(a, 0.0) * t + b * t * t;
+      work = std::max(work, gaussian_work_bytes(cv, t1, t2, T, reg.sites.size(), L, budget));
     }
     est.bytes += 2.0 * 8.0 * static_cast<double>(E.regions.size()) * static_cast<double>(T + 1);
   }
@@ -537,12 +600,14 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
       if (E.profile)
         est.stabilizer_s +=
             scale * seconds([&] { (void)stabilizer_profile(circ, N, init, Tp, std::min(E.profile_stride, std::max<std::int64_t>(Tp, 1))); });
+      work = std::max(work, stabilizer_work_bytes(N, L, E.profile));
     }
     est.bytes += 8.0 * static_cast<double>(E.stabilizer_dims.size() * E.regions.size()) * static_cast<double>(T + 1);
     if (E.profile)
       est.bytes += 8.0 * static_cast<double>(E.stabilizer_dims.size()) *
                    static_cast<double>(E.periods / E.profile_stride + 1) * static_cast<double>(L + 1);
   }
+  est.bytes += work;
   return est;
 }
 

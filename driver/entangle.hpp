@@ -75,10 +75,20 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
 // periods cost ~ a T + b T^2, fitted to two short runs; stabilizer curves
 // and profiles cost the same every period, so ~ T. Runs of T <= the probe
 // lengths are timed as they are. All zero without the table.
+// `bytes`: the curves of the record plus the largest working set of the
+// kernels (models below, extrapolated to the config's T).
 struct EntanglementEstimate {
   double gaussian_s = 0, stabilizer_s = 0, bytes = 0;
 };
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p);
+
+// Working memory (bytes, about) of one stabilizer curve / profile for local
+// dimension N on L sites, and of one Gaussian curve of a region of
+// `region_size` sites extrapolated to T from a probe curve computed to
+// t2 > t1.
+double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile);
+double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
+                           std::size_t region_size, std::int64_t L, double residue_budget);
 
 // `toral point`: the /entanglement values of `r` as JSON members (each
 // starting with ",\n  ", to follow the existing members), or a short table.

@@ -227,9 +227,10 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     long long count = 0;
     double seconds = 0, bytes = 0, flops = 0;
     double ent_seconds = 0;  // exact entanglement curves, probed on the class's first point
+    double ent_bytes = 0;    // their share of `bytes`
   };
-  // (sweep, L, method) -> cost class
-  std::map<std::tuple<int, std::int64_t, std::string>, Class> classes;
+  // (sweep, L, boundary, method) -> cost class
+  std::map<std::tuple<int, std::int64_t, int, std::string>, Class> classes;
   const int group = ranks_per_point(c, points, 1 << 20);
   for (const auto& p : points) {
     const Method m = planned_method(c, p);
@@ -240,13 +241,14 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     if (m == Method::Bloch) ok = !sw.bond.drawn() && !sw.site.drawn() && p.boundary == Boundary::Periodic;
     if (sw.redrawn && m != Method::Tangent) ok = false;
     const std::string name = !ok ? "unsolvable" : method_name(m);
-    Class& k = classes[{p.sweep, p.L, name}];
+    Class& k = classes[{p.sweep, p.L, static_cast<int>(p.boundary), name}];
     if (++k.count > 1) continue;  // every point of a class costs about the same: cost its first
     double ent_bytes = 0;
     if (c.entanglement.enabled) {
       const EntanglementEstimate e = estimate_entanglement(c, p);
       k.ent_seconds = e.gaussian_s + e.stabilizer_s;
       ent_bytes = e.bytes;
+      k.ent_bytes = e.bytes;
     }
     const double L = static_cast<double>(p.L);
     const double dim = pos ? L : 2 * L;
@@ -271,17 +273,20 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
      << (c.sweeps.size() == 1 ? "" : "s") << "\n";
   os << "  probe on this machine: dense " << num(probe.dense_flops_per_s / 1e9, 3) << " Gflop/s, bloch "
      << num(probe.bloch_s_per_site * 1e9, 3) << " ns/site" << "\n";
-  os << "  " << std::left << std::setw(16) << "sweep" << std::right << std::setw(10) << "L" << std::setw(12) << "method"
+  os << "  " << std::left << std::setw(16) << "sweep" << std::right << std::setw(10) << "L" << std::setw(10)
+     << "boundary" << std::setw(12) << "method"
      << std::setw(9) << "points" << std::setw(12) << "s/point" << std::setw(12) << "memory" << std::setw(12) << "Gflop";
   if (c.entanglement.enabled) os << std::setw(14) << "entangle s";
   os << "\n";
   double total_s = 0, total_flops = 0, worst = 0;
   long long unsolvable = 0;
   std::string worst_where;
+  bool worst_is_entanglement = false;
   for (const auto& [key, k] : classes) {
-    const auto& [sw, L, name] = key;
+    const auto& [sw, L, bc, name] = key;
+    const char* bcname = static_cast<Boundary>(bc) == Boundary::Open ? "open" : "periodic";
     os << "  " << std::left << std::setw(16) << c.sweeps[static_cast<std::size_t>(sw)].name << std::right << std::setw(10)
-       << L << std::setw(12) << name << std::setw(9) << k.count << std::setw(12) << num(k.seconds, 3) << std::setw(12)
+       << L << std::setw(10) << bcname << std::setw(12) << name << std::setw(9) << k.count << std::setw(12) << num(k.seconds, 3) << std::setw(12)
        << bytes_str(k.bytes) << std::setw(12) << num(k.flops * k.count / 1e9, 3);
     if (c.entanglement.enabled) os << std::setw(14) << num(k.ent_seconds, 3);
     os << "\n";
@@ -294,11 +299,12 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     if (k.bytes > worst) {
       worst = k.bytes;
       worst_where = "sweep \"" + c.sweeps[static_cast<std::size_t>(sw)].name + "\": points with L = " +
-                    std::to_string(L) + " (" + name + ")";
+                    std::to_string(L) + " (" + bcname + ", " + name + ")";
+      worst_is_entanglement = k.ent_bytes > k.bytes / 2;
     }
   }
   if (std::any_of(classes.begin(), classes.end(), [](const auto& kv) {
-        const auto& n = std::get<2>(kv.first);
+        const auto& n = std::get<3>(kv.first);
         return n == "krylov" || n == "tangent";
       }))
     os << "  distributed points run on groups of " << group << " rank" << (group == 1 ? "" : "s")
@@ -312,7 +318,10 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
           "they will be recorded as failed\n";
   if (worst > memory_gb * 1024 * 1024 * 1024)
     throw ConfigError(c.source + ": " + worst_where + " need about " + bytes_str(worst) + " each, more than " +
-                      "--memory-per-rank " + num(memory_gb, 3) + " GiB (lower spectrum.dense_max or use more memory)");
+                      "--memory-per-rank " + num(memory_gb, 3) + " GiB (" +
+                      (worst_is_entanglement ? "mostly the entanglement kernels: fewer sites, stabilizer_dims or periods"
+                                             : "lower spectrum.dense_max") +
+                      ", or use more memory)");
 }
 
 }  // namespace toral

@@ -2,12 +2,15 @@
 sweep of random circuits is run and every check is made on the HDF5 file."""
 import json
 import math
+import os
+import subprocess
 
 import h5py
 import numpy as np
 import pytest
 import scipy.io
 
+from conftest import mpi_env
 from test_cli import one_line_error, write
 
 T = 24
@@ -353,16 +356,21 @@ def test_bad_entanglement_config_is_one_located_line(tmp_path, run_toral, case):
     assert not out.exists()
 
 
-def check_table(stdout):
-    """The cost rows of `toral check`: {(sweep, L): (s/point, entangle s)} (columns: sweep, L, method,
-    points, s/point, memory as a number and a unit, Gflop, entangle s)."""
+UNITS = {"B": 1, "KiB": 2**10, "MiB": 2**20, "GiB": 2**30, "TiB": 2**40}
+
+
+def check_table(stdout, memory=False):
+    """The cost rows of `toral check`: {(sweep, L, boundary): (s/point, entangle s)} or, with memory,
+    (memory in bytes, entangle s) (columns: sweep, L, boundary, method, points, s/point, memory as a
+    number and a unit, Gflop, entangle s)."""
     rows, header = {}, None
     for line in stdout.splitlines():
         f = line.split()
         if f[:2] == ["sweep", "L"]:
             header = f
-        elif header and len(f) == 9 and f[1].isdigit():
-            rows[(f[0], int(f[1]))] = (float(f[4]), float(f[8]))
+        elif header and len(f) == 10 and f[1].isdigit():
+            first = float(f[6]) * UNITS[f[7]] if memory else float(f[5])
+            rows[(f[0], int(f[1]), f[2])] = (first, float(f[9]))
     return header, rows
 
 
@@ -401,6 +409,46 @@ stabilizer_dims = [2]
     # Without the table there is no such column.
     p = run_toral("check", write(tmp_path, text.split("[entanglement]")[0], "plain.toml"), check=True)
     assert "entangle" not in p.stdout
+
+
+def peak_rss_bytes(cmd):
+    """Peak resident memory of one child process (os.wait4 gives that child's own rusage; Linux: KiB)."""
+    p = subprocess.Popen([str(x) for x in cmd], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=mpi_env())
+    _, status, ru = os.wait4(p.pid, 0)
+    assert os.waitstatus_to_exitcode(status) == 0, p.stderr.read()
+    return ru.ru_maxrss * 1024
+
+
+def test_check_counts_the_kernels_memory_and_refuses_what_cannot_fit(tmp_path, run_toral, toral):
+    # An odd N keeps the L x 2L generator rows in 8-byte words (64 MiB at L = 2048), far more than the
+    # curves themselves; check must see it (within a factor of two of the measured peak of the same point
+    # over a run without [entanglement]: a wide margin, the allocator and libraries move the peak) and
+    # refuse a rank memory that cannot hold it, with the entanglement kernels named.
+    base = """
+[[sweep]]
+name = "kicked"
+sites = 2048
+[sweep.bond]
+family = "shear2"
+a = 1
+b = 1
+[sweep.site]
+family = "cat"
+a = 3
+b = 1
+[spectrum]
+method = "krylov"
+"""
+    ent = "[entanglement]\nperiods = 4\nregions = [[0, 5]]\ngaussian = false\nstabilizer_dims = [3]\n"
+    cfg, plain = write(tmp_path, base + ent, "m.toml"), write(tmp_path, base, "m0.toml")
+    header, rows = check_table(run_toral("check", cfg, check=True).stdout, memory=True)
+    (estimate, _), = rows.values()
+    measured = peak_rss_bytes([toral, "run", cfg, "-o", tmp_path / "m.h5", "-q"]) - \
+        peak_rss_bytes([toral, "run", plain, "-o", tmp_path / "m0.h5", "-q"])
+    assert measured > 32 * 2**20, measured  # the kernel really holds tens of MiB
+    assert measured / 2 < estimate < 2 * measured + 16 * 2**20, (estimate, measured)
+    p = run_toral("check", cfg, "--memory-per-rank", "0.03")
+    one_line_error(p, "entanglement kernels")
 
 
 def test_ensemble_stats_of_the_curves_match_numpy(runs):
