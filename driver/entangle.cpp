@@ -85,7 +85,7 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
   const toml::table& t = *node->as_table();
   const std::int64_t tline = Loc::line(*node);
   cx.only_keys(t, P, {"periods", "regions", "offset", "gaussian", "stabilizer_dims", "profile", "profile_stride",
-                      "initial"});
+                      "initial", "radius", "max_precision_bits"});
   e.enabled = true;
   const std::int64_t Lmax = max_sites(c);
 
@@ -127,6 +127,16 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
   }
   if (!e.gaussian && e.stabilizer_dims.empty())
     cx.fail(tline, P, "nothing to compute: gaussian is false and stabilizer_dims is empty");
+  if (const toml::node* rr = t.get("radius")) {
+    if (!rr->is_number()) cx.fail(*rr, P + ".radius", std::string("must be a number, not ") + Loc::type_name(*rr));
+    e.radius = rr->is_integer() ? static_cast<double>(rr->as_integer()->get()) : rr->as_floating_point()->get();
+    if (!(e.radius > 0 && e.radius <= 1e-3)) cx.fail(*rr, P + ".radius", "must be in (0, 1e-3] nats");
+  }
+  if (const toml::node* mp = t.get("max_precision_bits")) {
+    e.max_precision_bits = cx.integer(*mp, P + ".max_precision_bits");
+    if (e.max_precision_bits < 64 || e.max_precision_bits > (std::int64_t{1} << 20))
+      cx.fail(*mp, P + ".max_precision_bits", "must be in 64..1048576");
+  }
 
   // ---- regions
   const toml::node* rg = t.get("regions");
@@ -412,7 +422,7 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     for (std::size_t k = 0; k < nr; ++k) {
       if (!fits[k]) continue;
       try {
-        const EntropyCurve cv = gaussian_entropy_curve(circ, init, E.regions[k].sites, E.periods);
+        const EntropyCurve cv = gaussian_entropy_curve(circ, init, E.regions[k].sites, E.periods, entropy_options(E));
         std::copy(cv.entropy.begin(), cv.entropy.end(), r.gauss_entropy.begin() + static_cast<std::ptrdiff_t>(k * nt));
         std::copy(cv.radius.begin(), cv.radius.end(), r.gauss_radius.begin() + static_cast<std::ptrdiff_t>(k * nt));
         r.gauss_failures[k] = cv.failures;
@@ -425,7 +435,8 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
           const double worst = *std::max_element(cv.radius.begin(), cv.radius.end());
           std::ostringstream os;
           os << "gaussian region " << k << ": " << cv.failures << " of " << nt
-             << " times missed the certified radius target 1e-12 (largest radius " << std::setprecision(3) << worst
+             << " times missed the certified radius target " << std::setprecision(3) << E.radius
+             << " within entanglement.max_precision_bits = " << E.max_precision_bits << " (largest radius " << worst
              << ")";
           note(os.str());
         }
@@ -533,6 +544,13 @@ double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int6
   return exact + residues + charpoly;
 }
 
+EntropyOptions entropy_options(const EntanglementSpec& E) {
+  EntropyOptions o;
+  o.target_radius = E.radius;
+  o.max_prec_bits = E.max_precision_bits;
+  return o;
+}
+
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
   EntanglementEstimate est;
   const EntanglementSpec& E = c.entanglement;
@@ -560,7 +578,9 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
     for (const EntanglementRegion& reg : E.regions) {
       if (reg.sites.back() >= L) continue;
       EntropyCurve cv;
-      auto probe = [&](std::int64_t t) { return seconds([&] { cv = gaussian_entropy_curve(circ, init, reg.sites, t); }); };
+      auto probe = [&](std::int64_t t) {
+        return seconds([&] { cv = gaussian_entropy_curve(circ, init, reg.sites, t, entropy_options(E)); });
+      };
       if (T <= 32) {
         est.gaussian_s += probe(T);  // the whole curve: measured, not extrapolated
         if (T > 0) work = std::max(work, gaussian_work_bytes(cv, T - 1, T, T, reg.sites.size(), L, budget));

@@ -48,6 +48,8 @@ struct EntanglementSpec {
   bool profile = false;        // stabilizer all-cuts profile S([0, x)), x = 0..L, per N
   std::int64_t profile_stride = 1;
   std::vector<EntanglementInitial> initial;   // sites not covered: vacuum / position
+  double radius = 1e-12;                      // certified radius wanted for every Gaussian S_A(t)
+  std::int64_t max_precision_bits = 1 << 15;  // root precision the Gaussian kernel may rise to
 };
 
 // Reads the optional [entanglement] table of `text` (which parse_config has
@@ -75,6 +77,9 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
 // periods cost ~ a T + b T^2, fitted to two short runs; stabilizer curves
 // and profiles cost the same every period, so ~ T. Runs of T <= the probe
 // lengths are timed as they are. All zero without the table.
+// The Gaussian kernel's options from the config (radius, precision limit).
+EntropyOptions entropy_options(const EntanglementSpec& E);
+
 // `bytes`: the curves of the record plus the largest working set of the
 // kernels (models below, extrapolated to the config's T).
 struct EntanglementEstimate {

@@ -173,3 +173,74 @@ stabilizer_dims = [5]
     EXPECT_EQ(r.ent_cuts[1], 2);
   }
 }
+
+TEST(Entangle, MissedRadiusTargetMakesTheStatusEntanglementFailed) {
+  // A radius no 64-bit root precision can certify (S_A(t) is hundreds of nats):
+  // the curve is kept with its larger radii, the misses are counted, and the
+  // ok point becomes status 7 with a message naming the region and the target.
+  const Config c = parse_config(R"([[sweep]]
+sites = 2
+boundary = "open"
+[sweep.bond]
+matrix = [[2, 1], [1, 1]]
+[entanglement]
+periods = 30
+regions = [1]
+radius = 1e-200
+max_precision_bits = 64
+)",
+                                "t.toml");
+  ASSERT_EQ(c.entanglement.radius, 1e-200);
+  const PointRecord r = compute_point(c, param_table(c), expand(c).at(0));
+  EXPECT_EQ(r.status, 7) << r.message;  // entanglement_failed (io/record.hpp)
+  EXPECT_NE(r.message.find("gaussian region 0"), std::string::npos) << r.message;
+  EXPECT_NE(r.message.find("1e-200"), std::string::npos) << r.message;
+  ASSERT_EQ(r.gauss_failures.size(), 1u);
+  EXPECT_GT(r.gauss_failures[0], 0);
+  // the midpoints are still the curve: the cat slope 2 ln((3 + sqrt 5)/2)
+  // (Bianchi, Hackl & Yokomizo, JHEP 03 (2018) 025) within the larger radii
+  EXPECT_NEAR(r.gauss_entropy[30] - r.gauss_entropy[29], 1.9248473002384139, 1e-6);
+  EXPECT_TRUE(std::isfinite(r.lambda_max));  // the spectrum part is untouched
+  // the same point with the default target certifies every t
+  const Config ok = parse_config(R"([[sweep]]
+sites = 2
+boundary = "open"
+[sweep.bond]
+matrix = [[2, 1], [1, 1]]
+[entanglement]
+periods = 30
+regions = [1]
+)",
+                                 "t.toml");
+  const PointRecord q = compute_point(ok, param_table(ok), expand(ok).at(0));
+  EXPECT_EQ(q.status, 0) << q.message;
+  EXPECT_EQ(q.gauss_failures[0], 0);
+  for (double x : q.gauss_radius) EXPECT_LE(x, 1e-12);
+}
+
+TEST(Entangle, FailedSpectrumKeepsItsStatusAndTheCurvesAreComputed) {
+  // dense forced beyond dense_max: status no_method (4) for the spectrum,
+  // while the curves of the (valid) circuit are computed and Lambda is NaN.
+  const Config c = parse_config(R"([[sweep]]
+sites = 6
+[sweep.bond]
+family = "shear2"
+a = 1
+b = 1
+[spectrum]
+method = "dense"
+dense_max = 4
+[entanglement]
+periods = 8
+regions = [2]
+stabilizer_dims = [3]
+)",
+                                "t.toml");
+  const PointRecord r = compute_point(c, param_table(c), expand(c).at(0));
+  EXPECT_EQ(r.status, 4) << r.message;
+  for (double x : r.gauss_entropy) EXPECT_TRUE(std::isfinite(x));
+  for (double x : r.stab_entropy) EXPECT_TRUE(std::isfinite(x));
+  EXPECT_GT(r.gauss_entropy[8], 0.0);
+  EXPECT_TRUE(std::isnan(r.ent_lyapunov_rate[0]));
+  EXPECT_TRUE(std::isnan(r.gauss_slope_over_lyapunov[0]));
+}

@@ -339,6 +339,8 @@ BAD = {
                     "c.toml:12: entanglement.initial[0].squeeze"),
     "region_too_big": ("", "c.toml:8: entanglement.regions[0]: sites 0..4 need L >= 5"),
     "unknown_key": ("period = 3\n", "c.toml:9: entanglement.period: unknown key"),
+    "bad_radius": ("radius = 0.0\n", "c.toml:9: entanglement.radius: must be in (0, 1e-3]"),
+    "bad_precision": ("max_precision_bits = 32\n", "c.toml:9: entanglement.max_precision_bits: must be in 64..1048576"),
 }
 
 
