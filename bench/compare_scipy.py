@@ -286,7 +286,9 @@ def main():
              "plain which='LM' not converging even at L = 1e4. Each clean-chain scipy script runs in a child "
              "process capped at %g s; one that has not returned by then is reported as not converged, with no "
              "ratio. Timings on this 2-core machine move by up to 2-3x with other load; rerun the script to compare "
-             "on your own hardware." % (POWER_MARGIN, a.scipy_cap), ""]
+             "on your own hardware." % (POWER_MARGIN, a.scipy_cap), "",
+             "The exact entanglement kernels have their own side-by-side benchmark: bench/entanglement_exact.py, "
+             "docs/performance_entanglement.md.", ""]
     pathlib.Path(a.out).write_text("\n".join(text))
     print("\n".join(text))
 
