@@ -496,54 +496,6 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
   finish();
 }
 
-namespace {
-
-bool squarefree_n(std::int64_t N) {
-  for (std::int64_t q = 2; q * q <= N; ++q) {
-    if (N % q) continue;
-    N /= q;
-    if (N % q == 0) return false;
-  }
-  return true;
-}
-
-}  // namespace
-
-double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile) {
-  // The generator rows (L x 2L): bit-packed for N = 2, one 8-byte word per
-  // entry otherwise (FLINT nmod_mat; a square-free N runs its primes one
-  // after another, so the widest is what counts); the profile's echelon form
-  // is a second copy; the Howell path (N not square-free) forms up to
-  // 2L x 2L words per cut (kernels/stabilizer.cpp).
-  const double l = static_cast<double>(L);
-  const bool howell = !squarefree_n(N);
-  const double rows = N == 2 ? l * 2 * l / 8 : l * 2 * l * 8;
-  return rows * (profile ? 2 : 1) + (howell ? 2 * l * 2 * l * 8 : 0.0) + 64.0 * l;
-}
-
-double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
-                           std::size_t region_size, std::int64_t L, double residue_budget) {
-  // Extrapolated linearly from the probe at t1 < t2: the bit size of R_t's
-  // entries, its light-cone columns (at most 2L) and S_A(t).
-  auto at_T = [&](double a, double b) { return b + (b - a) * static_cast<double>(T - t2) / static_cast<double>(t2 - t1); };
-  const double bits = std::max(64.0, at_T(static_cast<double>(probe.bits[static_cast<std::size_t>(t1)]),
-                                           static_cast<double>(probe.bits[static_cast<std::size_t>(t2)])));
-  const double cols = std::min(2.0 * static_cast<double>(L),
-                               at_T(static_cast<double>(probe.columns[static_cast<std::size_t>(t1)]),
-                                    static_cast<double>(probe.columns[static_cast<std::size_t>(t2)])));
-  const double S = std::max(0.0, at_T(probe.entropy[static_cast<std::size_t>(t1)], probe.entropy[static_cast<std::size_t>(t2)]));
-  const double rows = 2.0 * static_cast<double>(region_size);
-  // kernels/gaussian_exact.cpp: R_t exactly (fmpz: limbs plus ~32 bytes);
-  // its residues modulo the primes of G (entries of 2 bits + log2 cols),
-  // up to the residue budget; G and the Berkowitz work vectors modulo the
-  // primes of the characteristic polynomial (about 2 S / ln 2 bits).
-  const double exact = rows * cols * (bits / 8 + 32);
-  const double residues = std::min(residue_budget, rows * cols * ((2 * bits + 64) / 27 + 1) * 4);
-  const double np = (2 * S / std::log(2.0) + 64) / 27 + 32;
-  const double charpoly = np * rows * rows * 4 * 4;
-  return exact + residues + charpoly;
-}
-
 EntropyOptions entropy_options(const EntanglementSpec& E) {
   EntropyOptions o;
   o.target_radius = E.radius;
@@ -574,7 +526,6 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
     // extrapolation multiplies by (T / t2)^2) or would pass T / 2.
     constexpr double kProbeSeconds = 0.5;
     const std::vector<GaussianSite> init = gaussian_initial(E, L);
-    const double budget = static_cast<double>(EntropyOptions{}.residue_budget_bytes);
     for (const EntanglementRegion& reg : E.regions) {
       if (reg.sites.back() >= L) continue;
       EntropyCurve cv;
@@ -583,7 +534,7 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
       };
       if (T <= 32) {
         est.gaussian_s += probe(T);  // the whole curve: measured, not extrapolated
-        if (T > 0) work = std::max(work, gaussian_work_bytes(cv, T - 1, T, T, reg.sites.size(), L, budget));
+        if (T > 0) work = std::max(work, gaussian_work_bytes(cv, T - 1, T, T, reg.sites.size(), L, entropy_options(E)));
         continue;
       }
       std::int64_t t1 = 16, t2 = 32;
@@ -602,7 +553,7 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
         a = c2 / x2;
       }
       est.gaussian_s += std::max(a, 0.0) * t + b * t * t;
-      work = std::max(work, gaussian_work_bytes(cv, t1, t2, T, reg.sites.size(), L, budget));
+      work = std::max(work, gaussian_work_bytes(cv, t1, t2, T, reg.sites.size(), L, entropy_options(E)));
     }
     est.bytes += 2.0 * 8.0 * static_cast<double>(E.regions.size()) * static_cast<double>(T + 1);
   }

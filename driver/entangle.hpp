@@ -70,30 +70,23 @@ EntanglementAxes entanglement_axes(const Config& c);
 // NaN curves (the kernels take one time-periodic circuit).
 void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
 
-// `toral check`: about how long compute_entanglement takes for point `p`
-// (seconds), and the bytes its curves need, measured by running the kernels
-// on the point itself for a few short T and extrapolating: a Gaussian curve's
-// per-period cost grows about linearly with t (its exact integers do), so T
-// periods cost ~ a T + b T^2, fitted to two short runs; stabilizer curves
-// and profiles cost the same every period, so ~ T. Runs of T <= the probe
-// lengths are timed as they are. All zero without the table.
 // The Gaussian kernel's options from the config (radius, precision limit).
 EntropyOptions entropy_options(const EntanglementSpec& E);
 
-// `bytes`: the curves of the record plus the largest working set of the
-// kernels (models below, extrapolated to the config's T).
+// `toral check`: about how long compute_entanglement takes for point `p`
+// (seconds), and the bytes it needs (its curves in the record plus the
+// largest working set of the kernels: stabilizer_work_bytes and
+// gaussian_work_bytes), by running the kernels on the point itself for
+// short T and extrapolating. A Gaussian curve's per-period cost grows about
+// linearly with t (its exact integers do), so T periods cost ~ a T + b T^2,
+// fitted through the last two probes of T = 16, 32, 64, ... (they stop once
+// one takes half a second or would pass T / 2); stabilizer curves and
+// profiles cost the same every period, so ~ T from a 24-period probe. Runs of
+// T <= the probe lengths are timed as they are. All zero without the table.
 struct EntanglementEstimate {
   double gaussian_s = 0, stabilizer_s = 0, bytes = 0;
 };
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p);
-
-// Working memory (bytes, about) of one stabilizer curve / profile for local
-// dimension N on L sites, and of one Gaussian curve of a region of
-// `region_size` sites extrapolated to T from a probe curve computed to
-// t2 > t1.
-double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile);
-double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
-                           std::size_t region_size, std::int64_t L, double residue_budget);
 
 // `toral point`: the /entanglement values of `r` as JSON members (each
 // starting with ",\n  ", to follow the existing members), or a short table.

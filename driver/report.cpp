@@ -243,13 +243,12 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     const std::string name = !ok ? "unsolvable" : method_name(m);
     Class& k = classes[{p.sweep, p.L, static_cast<int>(p.boundary), name}];
     if (++k.count > 1) continue;  // every point of a class costs about the same: cost its first
-    double ent_bytes = 0;
     if (c.entanglement.enabled) {
       const EntanglementEstimate e = estimate_entanglement(c, p);
       k.ent_seconds = e.gaussian_s + e.stabilizer_s;
-      ent_bytes = e.bytes;
       k.ent_bytes = e.bytes;
     }
+    const double ent_bytes = k.ent_bytes;
     const double L = static_cast<double>(p.L);
     const double dim = pos ? L : 2 * L;
     const double gates = 400.0 * L;  // gates, exponents and sort buffers

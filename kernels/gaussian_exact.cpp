@@ -1459,4 +1459,35 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
   return out;
 }
 
+double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
+                           std::size_t region_size, std::int64_t L, const EntropyOptions& opt) {
+  const auto n = probe.bits.size();
+  if (!(t1 >= 0 && t1 < t2 && static_cast<std::size_t>(t2) < n && probe.columns.size() == n &&
+        probe.entropy.size() == n && T >= t2))
+    throw std::invalid_argument("gaussian_work_bytes: need 0 <= t1 < t2 <= T within the probe curve");
+  // Linear extrapolation from t1, t2 to T of the entry bits of R_t, its
+  // light-cone columns (at most 2L) and S_A(t).
+  const auto u1 = static_cast<std::size_t>(t1), u2 = static_cast<std::size_t>(t2);
+  auto at_T = [&](double a, double b) {
+    return b + (b - a) * static_cast<double>(T - t2) / static_cast<double>(t2 - t1);
+  };
+  const double bits = std::max(64.0, at_T(static_cast<double>(probe.bits[u1]), static_cast<double>(probe.bits[u2])));
+  const double cols = std::min(2.0 * static_cast<double>(L), at_T(static_cast<double>(probe.columns[u1]),
+                                                                  static_cast<double>(probe.columns[u2])));
+  const double S = std::max(0.0, at_T(probe.entropy[u1], probe.entropy[u2]));
+  const double rows = 2.0 * static_cast<double>(region_size);
+  // LightCone: R_t exactly (fmpz limbs plus the mpz header), and its residues
+  // (two uint32 lane arrays) modulo the primes that reconstruct G, while they
+  // fit residue_budget_bytes (past it they are dropped: the peak is the budget).
+  const double exact = rows * cols * (bits / 8 + 32);
+  const double need_bits = 2 * bits + 64 + std::log2(std::max(cols, 1.0)) + 2;
+  const double nres = std::ceil(need_bits / multimod::kPrimeBits / multimod::kLanes) * multimod::kLanes;
+  const double residues = std::min(static_cast<double>(opt.residue_budget_bytes), rows * cols * nres * 8);
+  // The characteristic polynomial: coefficients of about 2 S / ln 2 bits,
+  // primes in blocks of 64; G and four Berkowitz work arrays per prime.
+  const double np = 64 * std::ceil((2 * S / std::log(2.0) + 64) / multimod::kPrimeBits / 64);
+  const double charpoly = np * rows * rows * 4 * 5;
+  return exact + residues + charpoly;
+}
+
 }  // namespace toral

@@ -115,4 +115,11 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
                                     const std::vector<std::int64_t>& region, std::int64_t T,
                                     const EntropyOptions& opt = {});
 
+// Working memory (bytes, about) of the curve of a region of `region_size`
+// sites of an L-site lattice to T, extrapolated from `probe`, the same curve
+// computed to at least t2 (0 <= t1 < t2 <= T), with the same options (used
+// by `toral check`).
+double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int64_t t2, std::int64_t T,
+                           std::size_t region_size, std::int64_t L, const EntropyOptions& opt);
+
 }  // namespace toral

@@ -856,4 +856,20 @@ std::vector<std::vector<double>> stabilizer_profile(const Circuit& c, std::int64
   return out;
 }
 
+double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile) {
+  // The generator rows, L x 2L: Gf2Rows bit-packs them for p = 2, NmodRows
+  // keeps one word (mp_limb_t) per entry; a square-free N runs its primes one
+  // after another, so one set of rows is alive at a time. The profile's
+  // echelon form is a second copy; the Howell path (N not square-free) forms
+  // up to max(L, 2L) x 2L words per cut (howell_pivots).
+  if (N < 2) throw std::invalid_argument("stabilizer_work_bytes: N = " + std::to_string(N) + " < 2");
+  const auto fac = factorize(static_cast<u64>(N));
+  const double l = static_cast<double>(L);
+  const double word_rows = l * 2 * l * static_cast<double>(sizeof(mp_limb_t));
+  if (use_howell(StabilizerMethod::Auto, fac)) return word_rows + 2 * l * 2 * l * sizeof(mp_limb_t) + 64.0 * l;
+  const bool only_two = fac.size() == 1 && fac[0].p == 2;
+  const double rows = only_two ? l * 2 * l / 8 : word_rows;
+  return rows * (profile ? 2 : 1) + 64.0 * l;
+}
+
 }  // namespace toral

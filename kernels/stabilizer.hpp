@@ -113,6 +113,10 @@ std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
                                              std::int64_t T,
                                              StabilizerMethod method = StabilizerMethod::Auto);
 
+// Working memory (bytes, about) of one curve or profile for local dimension
+// N >= 2 on L sites with StabilizerMethod::Auto (used by `toral check`).
+double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile);
+
 // profile[k][x] = S([0, x)) in nats for x = 0..L at t = k * stride,
 // k = 0..floor(T / stride). Errors as above, plus stride < 1.
 std::vector<std::vector<double>> stabilizer_profile(const Circuit& c, std::int64_t N,
