@@ -5,6 +5,7 @@
 #include <mpi.h>
 
 #include <cmath>
+#include <string>
 
 #include "compute.hpp"
 #include "config.hpp"
@@ -178,7 +179,7 @@ TEST(Entangle, MissedRadiusTargetMakesTheStatusEntanglementFailed) {
   // A radius no 64-bit root precision can certify (S_A(t) is hundreds of nats):
   // the curve is kept with its larger radii, the misses are counted, and the
   // ok point becomes status 7 with a message naming the region and the target.
-  const Config c = parse_config(R"([[sweep]]
+  const std::string cat = R"([[sweep]]
 sites = 2
 boundary = "open"
 [sweep.bond]
@@ -186,10 +187,8 @@ matrix = [[2, 1], [1, 1]]
 [entanglement]
 periods = 30
 regions = [1]
-radius = 1e-200
-max_precision_bits = 64
-)",
-                                "t.toml");
+)";
+  const Config c = parse_config(cat + "radius = 1e-200\nmax_precision_bits = 64\n", "t.toml");
   ASSERT_EQ(c.entanglement.radius, 1e-200);
   const PointRecord r = compute_point(c, param_table(c), expand(c).at(0));
   EXPECT_EQ(r.status, 7) << r.message;  // entanglement_failed (io/record.hpp)
@@ -202,16 +201,7 @@ max_precision_bits = 64
   EXPECT_NEAR(r.gauss_entropy[30] - r.gauss_entropy[29], 1.9248473002384139, 1e-6);
   EXPECT_TRUE(std::isfinite(r.lambda_max));  // the spectrum part is untouched
   // the same point with the default target certifies every t
-  const Config ok = parse_config(R"([[sweep]]
-sites = 2
-boundary = "open"
-[sweep.bond]
-matrix = [[2, 1], [1, 1]]
-[entanglement]
-periods = 30
-regions = [1]
-)",
-                                 "t.toml");
+  const Config ok = parse_config(cat, "t.toml");
   const PointRecord q = compute_point(ok, param_table(ok), expand(ok).at(0));
   EXPECT_EQ(q.status, 0) << q.message;
   EXPECT_EQ(q.gauss_failures[0], 0);

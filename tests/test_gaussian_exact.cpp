@@ -657,6 +657,35 @@ TEST(GaussianExact, FastPathMatchesFlintArbReference) {
   }
 }
 
+TEST(GaussianExact, WorkBytesModel) {
+  // The memory model of `toral check` (gaussian_work_bytes) against what the
+  // probe itself shows: R_t exactly needs at least rows x columns x bits / 8
+  // bytes (common practice: an integer of b bits takes b / 8 bytes), the
+  // model grows with T, the residue budget bounds the residues, and the
+  // light cone never passes 2L columns. The measured peak is compared in
+  // tests/cli/test_entanglement.py for the stabilizer rows.
+  std::mt19937_64 rng(7);
+  const std::int64_t L = 64;
+  const Circuit c = random_circuit(L, Boundary::Open, Kind::Position, rng, 2);
+  const std::vector<std::int64_t> region = {0, 1, 2, 3};
+  const EntropyCurve cv = gaussian_entropy_curve(c, vacuum(L), region, 40);
+  const EntropyOptions opt;
+  const double at40 = gaussian_work_bytes(cv, 20, 40, 40, region.size(), L, opt);
+  EXPECT_GE(at40, 8.0 * static_cast<double>(cv.columns[40]) * static_cast<double>(cv.bits[40]) / 8);
+  const double at4000 = gaussian_work_bytes(cv, 20, 40, 4000, region.size(), L, opt);
+  EXPECT_GT(at4000, at40);
+  EntropyOptions small = opt;
+  small.residue_budget_bytes = 0;
+  const double no_residues = gaussian_work_bytes(cv, 20, 40, 4000, region.size(), L, small);
+  EXPECT_LT(no_residues, at4000);
+  // exact R at T = 4000 with at most 2L columns (the extrapolated bits times 2L),
+  // plus the characteristic-polynomial lanes (under 16 MB for these few hundred nats)
+  const double bits4000 = cv.bits[40] + (cv.bits[40] - cv.bits[20]) * (4000.0 - 40) / 20;
+  EXPECT_LE(no_residues, 8.0 * 2 * L * (std::max(bits4000, 64.0) / 8 + 32) + 16e6);
+  EXPECT_THROW(gaussian_work_bytes(cv, 40, 20, 4000, region.size(), L, opt), std::invalid_argument);
+  EXPECT_THROW(gaussian_work_bytes(cv, 20, 41, 4000, region.size(), L, opt), std::invalid_argument);
+}
+
 // --- 6. Bad input ------------------------------------------------------------
 
 TEST(GaussianExact, BadInputThrows) {

@@ -376,23 +376,18 @@ def check_table(stdout, memory=False):
     return header, rows
 
 
+def kicked_ring(L, kick):
+    """A clean shear ring (a = b = 1) with a one-site cat kick C(kick, 1)."""
+    return (f'[[sweep]]\nname = "kicked"\nsites = {L}\n[sweep.bond]\nfamily = "shear2"\na = 1\nb = 1\n'
+            f'[sweep.site]\nfamily = "cat"\na = {kick}\nb = 1\n')
+
+
 def test_check_estimates_the_entanglement_cost(tmp_path, run_toral):
     # The curves are probed on each class's own first point: the estimate is
     # there, finite and positive, and grows with T (exact integers grow with t,
     # so ten times the periods cost far more than twice as much; a wide margin,
     # not a timing claim).
-    text = """
-[[sweep]]
-name = "kicked"
-sites = 16
-[sweep.bond]
-family = "shear2"
-a = 1
-b = 1
-[sweep.site]
-family = "cat"
-a = 2
-b = 1
+    text = kicked_ring(16, 2) + """
 [entanglement]
 periods = {T}
 regions = [4]
@@ -426,21 +421,7 @@ def test_check_counts_the_kernels_memory_and_refuses_what_cannot_fit(tmp_path, r
     # curves themselves; check must see it (within a factor of two of the measured peak of the same point
     # over a run without [entanglement]: a wide margin, the allocator and libraries move the peak) and
     # refuse a rank memory that cannot hold it, with the entanglement kernels named.
-    base = """
-[[sweep]]
-name = "kicked"
-sites = 2048
-[sweep.bond]
-family = "shear2"
-a = 1
-b = 1
-[sweep.site]
-family = "cat"
-a = 3
-b = 1
-[spectrum]
-method = "krylov"
-"""
+    base = kicked_ring(2048, 3) + '[spectrum]\nmethod = "krylov"\n'
     ent = "[entanglement]\nperiods = 4\nregions = [[0, 5]]\ngaussian = false\nstabilizer_dims = [3]\n"
     cfg, plain = write(tmp_path, base + ent, "m.toml"), write(tmp_path, base, "m0.toml")
     header, rows = check_table(run_toral("check", cfg, check=True).stdout, memory=True)
