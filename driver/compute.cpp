@@ -2,6 +2,7 @@
 
 #include <chrono>
 #include <cmath>
+#include <sstream>
 
 #include <algorithm>
 
@@ -91,6 +92,25 @@ void fill_bounds(PointRecord& r, const Config& c, std::int64_t L, const std::vec
   r.saturation_lightcone = b.saturation_lightcone;
 }
 
+// Status 8 (values kept) for accuracy estimates that are not finite or exceed
+// spectrum.max_error. The tangent method's error is a statistical estimate
+// set by its `periods`, so there only a non-finite one counts.
+template <class Fail>
+void check_accuracy(const PointRecord& r, double max_error, Fail&& fail) {
+  if (r.status != static_cast<std::int32_t>(PointStatus::Ok)) return;
+  const bool tangent = r.method == static_cast<std::int32_t>(Method::Tangent);
+  auto bad = [&](double v) { return !std::isfinite(v) || (!tangent && v > max_error); };
+  auto say = [&](const char* what, double v) {
+    std::ostringstream os;
+    os << what << " " << v << (std::isfinite(v) ? " exceeds spectrum.max_error = " : " is not finite")
+       << (std::isfinite(v) ? std::to_string(max_error) : std::string())
+       << "; the values are kept but not trustworthy";
+    fail(PointStatus::Inaccurate, os.str());
+  };
+  if (r.method != 0 && bad(r.error_bound)) return say("/chaos/accuracy/error_bound", r.error_bound);
+  if (!std::isnan(r.limit_ks_density) && bad(r.limit_accuracy)) return say("/limit/accuracy", r.limit_accuracy);
+}
+
 }  // namespace
 
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group) {
@@ -178,7 +198,8 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       fail(PointStatus::NoMethod, "no spectrum method: " + why);
     } else {
       const auto ts = std::chrono::steady_clock::now();
-      const Spectrum sp = m == Method::Bloch ? bloch_spectrum(circ) : dense_spectrum(circ);
+      const Spectrum sp =
+          m == Method::Bloch ? bloch_spectrum(circ) : dense_spectrum(circ, c.spectrum.certify_max);
       r.solver_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - ts).count();
       r.solver = static_cast<std::int32_t>(m == Method::Bloch ? SolverCode::BlochExact : SolverCode::Lapack);
       r.solver_converged = static_cast<std::int64_t>(sp.exponents.size());
@@ -200,7 +221,10 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.ks_rate = cs.ks_rate;
       r.ks_density = cs.ks_density;
       r.unstable_count = cs.unstable_count;
+      r.zero_count = cs.zero_count;
+      r.zero_certified = static_cast<std::int64_t>(sp.zero_rule);
       r.exponents = cs.kept;
+      if (!sp.warning.empty()) fail(PointStatus::Inaccurate, "spectrum: " + sp.warning);
       r.pairing_defect = sp.pairing_defect;
       r.sum_defect = sp.sum_defect;
       r.error_bound = sp.error_bound;
@@ -221,6 +245,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.limit_hist_counts = bl.hist_counts;
       r.limit_hist_edges = bl.hist_edges;
     }
+    check_accuracy(r, c.spectrum.max_error, fail);
   } catch (const OverflowError& e) {
     fail(PointStatus::Overflow, e.what());
   } catch (const ModelError& e) {

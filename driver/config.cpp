@@ -212,7 +212,8 @@ Config parse_config(const std::string& text, const std::string& source) {
 
   if (const toml::node* sp = root.get("spectrum")) {
     const auto& t = cx.table(*sp, "spectrum");
-    cx.only_keys(t, "spectrum", {"method", "dense_max", "keep_all", "top", "bins", "bulk_limit", "krylov", "tangent"});
+    cx.only_keys(t, "spectrum", {"method", "dense_max", "certify_max", "max_error", "keep_all", "top", "bins", "bulk_limit",
+                                   "krylov", "tangent"});
     auto& S = c.spectrum;
     if (const toml::node* m = t.get("method")) {
       S.method = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense", "krylov", "tangent"});
@@ -232,6 +233,10 @@ Config parse_config(const std::string& text, const std::string& source) {
     if (bins > 100000) cx.fail(*t.get("bins"), "spectrum.bins", "at most 100000 bins");
     S.summary.bins = static_cast<int>(bins);
     if (const toml::node* b = t.get("bulk_limit")) S.bulk_limit = cx.boolean(*b, "spectrum.bulk_limit");
+    if (const toml::node* n = t.get("certify_max")) {
+      S.certify_max = cx.integer(*n, "spectrum.certify_max");
+      if (S.certify_max < 0 || S.certify_max > 4096) cx.fail(*n, "spectrum.certify_max", "must be in 0..4096");
+    }
     auto count_key = [&](const toml::table& sub, const std::string& where, const char* key, std::int64_t& out,
                          std::int64_t lo, std::int64_t hi) {
       if (const toml::node* n = sub.get(key)) {
@@ -249,6 +254,7 @@ Config parse_config(const std::string& text, const std::string& source) {
                                                                       std::to_string(hi) + ")");
       }
     };
+    real_key(t, "spectrum", "max_error", S.max_error, 0.0, 1.0);
     if (const toml::node* k = t.get("krylov")) {
       const auto& kt = cx.table(*k, "spectrum.krylov");
       cx.only_keys(kt, "spectrum.krylov",

@@ -76,6 +76,8 @@ struct SpectrumSpec {
   KrylovSpec krylov;
   TangentSpec tangent;
   std::int64_t dense_max = 4096;  // largest matrix dimension for dense
+  std::int64_t certify_max = 192;  // dense: largest dimension whose zero exponents are decided exactly
+  double max_error = 1e-6;         // accuracy estimates above this give status 8 (inaccurate)
   SummaryOptions summary;
   bool bulk_limit = true;
   std::int64_t method_line = 0;

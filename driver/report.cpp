@@ -112,7 +112,8 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
        << ",\n  \"/points/method\": " << r.method << ",\n  \"/points/wall_time\": " << json_num(r.wall_time)
        << ",\n  \"/chaos/lambda_max\": " << json_num(r.lambda_max) << ",\n  \"/chaos/ks_rate\": "
        << json_num(r.ks_rate) << ",\n  \"/chaos/ks_density\": " << json_num(r.ks_density)
-       << ",\n  \"/chaos/unstable_count\": " << r.unstable_count << ",\n  \"/chaos/exponents\": "
+       << ",\n  \"/chaos/unstable_count\": " << r.unstable_count << ",\n  \"/chaos/zero_count\": " << r.zero_count
+       << ",\n  \"/chaos/zero_certified\": " << r.zero_certified << ",\n  \"/chaos/exponents\": "
        << json_array(r.exponents) << ",\n  \"/chaos/accuracy/pairing_defect\": " << json_num(r.pairing_defect)
        << ",\n  \"/chaos/accuracy/sum_defect\": " << json_num(r.sum_defect)
        << ",\n  \"/chaos/accuracy/error_bound\": " << json_num(r.error_bound)
@@ -137,7 +138,9 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   os << "point " << p.index << " of sweep \"" << s.name << "\": " << point_identity(c, p);
   if (p.seed >= 0) os << ", seed " << p.seed;
   os << "\n";
-  if (r.status != 0) {
+  if (r.status == static_cast<std::int32_t>(PointStatus::Inaccurate)) {
+    os << "  INACCURATE (status 8, values kept): " << r.message << "\n";
+  } else if (r.status != 0) {
     os << "  FAILED (status " << r.status << "): " << r.message << "\n";
     print_entanglement(os, c, r, false);
     return;
@@ -147,7 +150,9 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
      << "  lambda_max          " << num(r.lambda_max, 12) << "  per period\n"
      << "  KS rate h           " << num(r.ks_rate, 12) << "  per period\n"
      << "  KS density h/L      " << num(r.ks_density, 12) << "  per site and period\n"
-     << "  positive exponents  " << r.unstable_count << " of " << 2 * p.L << "\n"
+     << "  positive exponents  " << r.unstable_count << " of " << 2 * p.L << ", zero " << r.zero_count
+     << (r.zero_certified == 1 ? " (exact)" : r.zero_certified == 0 ? " (within error, not certified)" : "")
+     << "\n"
      << "  accuracy            pairing " << num(r.pairing_defect, 3) << ", sum " << num(r.sum_defect, 3)
      << ", error bound " << num(r.error_bound, 3) << "\n";
   os << "  top exponents      ";

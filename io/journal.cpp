@@ -23,7 +23,7 @@ namespace {
 // io/result_file.cpp taught to write and read it); this assertion fires on
 // the reference platform when PointRecord changes size, as a reminder.
 #if defined(__GLIBCXX__) && defined(__x86_64__) && defined(__linux__)
-static_assert(sizeof(PointRecord) == 1000,
+static_assert(sizeof(PointRecord) == 1016,
               "PointRecord changed: update visit() in io/journal.cpp (and bump kJournalVersion), "
               "io/result_file.cpp (writer and read_results) and docs/layout.md, then this size");
 #endif
@@ -121,7 +121,7 @@ class In {
   bool ok_ = true;
 };
 
-// The payload field order (format version 2). Shared by both directions.
+// The payload field order (format version 3). Shared by both directions.
 template <class A, class R>
 void visit(A& a, R& r) {
   a(r.index);
@@ -136,6 +136,8 @@ void visit(A& a, R& r) {
   a(r.ks_rate);
   a(r.ks_density);
   a(r.unstable_count);
+  a(r.zero_count);
+  a(r.zero_certified);
   a(r.exponents);
   a(r.exponent_errors);
   a(r.pairing_defect);

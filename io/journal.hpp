@@ -26,7 +26,8 @@ namespace toral {
 
 // Format version written in the header; read_journal refuses others.
 // 2: the /entanglement fields of PointRecord were added.
-constexpr std::uint32_t kJournalVersion = 2;
+// 3: /chaos/zero_count and /chaos/zero_certified.
+constexpr std::uint32_t kJournalVersion = 3;
 
 // `result_path + ".journal"`.
 std::string journal_path(const std::string& result_path);

@@ -21,6 +21,8 @@ enum class PointStatus : std::int32_t {
   InternalError = 5,  // anything else; see the message
   Pending = 6,        // not computed yet (checkpoint of an unfinished run)
   EntanglementFailed = 7,  // an exact entropy kernel failed or missed its certified radius
+  Inaccurate = 8,     // results kept, but an accuracy estimate is not finite or exceeds
+                      // spectrum.max_error, or the numbers failed a consistency check
 };
 
 // Spectrum-solver codes stored in /chaos/solver/method.
@@ -90,6 +92,8 @@ struct PointRecord {
   // /chaos
   double lambda_max = kNaN, ks_rate = kNaN, ks_density = kNaN;
   std::int64_t unstable_count = -1;
+  std::int64_t zero_count = -1;           // exponents exactly zero (certified) or within their error of 0
+  std::int64_t zero_certified = -1;       // 1 exact (integer polynomial), 0 numerical tolerance, -1 not computed
   std::vector<double> exponents;          // kept exponents, descending
   std::vector<double> exponent_errors;    // per kept exponent (same length), or empty
   double pairing_defect = kNaN, sum_defect = kNaN, error_bound = kNaN;

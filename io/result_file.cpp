@@ -728,7 +728,15 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
               "nats/(period*site)", "KS entropy rate per site: ks_rate / L");
       put_i64(c, "unstable_count",
               icolumn(recs, [](const PointRecord& r) { return r.unstable_count; }), "1",
-              "number of exponents above the zero tolerance; -1 when not computed");
+              "number of positive exponents: exactly (2L - zero_count) / 2 when zero_certified = 1, "
+              "else those above their error estimate; -1 when not computed");
+      put_i64(c, "zero_count", icolumn(recs, [](const PointRecord& r) { return r.zero_count; }), "1",
+              "number of exponents that are exactly zero (zero_certified = 1: stored as 0.0) or within "
+              "their error estimate of zero (zero_certified = 0); -1 when not computed");
+      put_i64(c, "zero_certified",
+              icolumn(recs, [](const PointRecord& r) { return r.zero_certified; }), "1",
+              "1: zero exponents decided exactly from the integer characteristic polynomial; 0: by the "
+              "numerical error estimate (not certified); -1: not computed (krylov, tangent)");
       put_f64(c, "exponents", {hk},
               rows_of(recs, K, [](const PointRecord& r) -> const auto& { return r.exponents; }),
               "1/period",
@@ -906,7 +914,7 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
 const std::vector<std::string>& status_labels() {
   static const std::vector<std::string> v{"ok",        "invalid_model",  "overflow", "solver_failed",
                                           "no_method", "internal_error", "pending",
-                                          "entanglement_failed"};
+                                          "entanglement_failed", "inaccurate"};
   return v;
 }
 
@@ -1332,6 +1340,10 @@ ResultData read_file(const Reader& rd) {
     each_f64(rd.f64("/chaos/ks_rate", {hP}), &PointRecord::ks_rate);
     each_f64(rd.f64("/chaos/ks_density", {hP}), &PointRecord::ks_density);
     each_i64(rd.i64("/chaos/unstable_count", {hP}), &PointRecord::unstable_count);
+    if (rd.has("/chaos/zero_count")) {  // absent in files written before toral 0.2
+      each_i64(rd.i64("/chaos/zero_count", {hP}), &PointRecord::zero_count);
+      each_i64(rd.i64("/chaos/zero_certified", {hP}), &PointRecord::zero_certified);
+    }
     const hsize_t K = rd.inner("/chaos/exponents", hP, 2)[0];
     const std::size_t k = static_cast<std::size_t>(K);
     const auto ex = rd.f64("/chaos/exponents", {hP, K});

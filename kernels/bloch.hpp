@@ -23,10 +23,18 @@ std::vector<std::complex<double>> bloch_matrix(const Circuit& c, double k, int& 
 std::vector<double> bloch_exponents(const Circuit& c, double k);
 
 // Full finite-ring spectrum of a translation-invariant periodic circuit.
+// The zero exponents are decided exactly (bloch_exact.hpp; ZeroRule::Exact),
+// unless that analysis fails (ZeroRule::Numerical). Blocks whose error
+// estimate exceeds 1e-10 (huge gate entries, near-defective blocks) are
+// recomputed from certified enclosures of the roots of the exact F(lambda, z).
 Spectrum bloch_spectrum(const Circuit& c);
 
 // Per-site quantities of the same circuit for L -> infinity. The circuit's L
-// only fixes the gates; any even L >= 2 describes the same limit.
+// only fixes the gates; any even L >= 2 describes the same limit. The KS
+// integral is split at the kinks (where eigenvalues leave the unit circle,
+// bloch_exact.hpp) and arcs with every eigenvalue on the circle contribute
+// exactly 0; `accuracy` adds the quadrature error estimates and the largest
+// pointwise eigenvalue error of the integrand.
 struct BulkLimit {
   double lambda_max = 0.0;  // sup over k of the largest exponent
   double ks_density = 0.0;  // (1/2pi) int dk (1/2) sum of positive exponents at k
@@ -34,6 +42,7 @@ struct BulkLimit {
   std::vector<double> hist_counts;  // exponent density: fraction per bin
   std::vector<double> hist_edges;   // bins + 1 edges on [-lambda_max, lambda_max]
   double hist_accuracy = 0.0;       // max change of a bin under grid refinement
+  bool zero_certified = false;      // the elliptic arcs (exact zeros) come from bloch_exact.hpp
 };
 BulkLimit bulk_limit(const Circuit& c, int bins, double tol = 1e-10);
 

@@ -2,13 +2,22 @@
 
 #include <lapacke.h>
 
+#include "unit_circle.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <functional>
 #include <limits>
+#include <sstream>
 #include <stdexcept>
 
 namespace toral {
+
+namespace {
+// Dense spectra whose largest error estimate exceeds this (after the exact
+// zeros) are recomputed from certified roots of the characteristic polynomial.
+constexpr double kCertifyAbove = 1e-10;
+}  // namespace
 
 const char* method_name(Method m) {
   switch (m) {
@@ -56,26 +65,95 @@ void histogram(const std::vector<double>& values, double lo, double hi, int bins
   for (double& c : counts) c /= static_cast<double>(values.size());
 }
 
+void apply_exact_zeros(Spectrum& s, std::int64_t zeros) {
+  const std::int64_t n = static_cast<std::int64_t>(s.exponents.size());
+  if (zeros < 0 || zeros > n || (n - zeros) % 2 != 0)
+    throw std::logic_error("apply_exact_zeros: " + std::to_string(zeros) + " zeros among " + std::to_string(n) +
+                           " exponents");
+  if (s.errors.size() != s.exponents.size()) s.errors.assign(s.exponents.size(), s.error_bound);
+  const std::int64_t first = (n - zeros) / 2;
+  // The exact count says which exponents are zero only as a number; the
+  // `zeros` nearest zero are taken. That choice is unambiguous when every
+  // exponent kept is farther from zero, by more than its own error, than
+  // every exponent set to zero (dgeevx scatters a Jordan block of size m by
+  // ~eps^(1/m), which can be large; the exact count makes that harmless as
+  // long as the two groups separate).
+  double zeroed = 0.0, kept = std::numeric_limits<double>::infinity(), kept_err = 0.0;
+  for (std::int64_t i = 0; i < n; ++i) {
+    const auto u = static_cast<std::size_t>(i);
+    const double a = std::fabs(s.exponents[u]);
+    if (i >= first && i < first + zeros) {
+      zeroed = std::max(zeroed, a);
+    } else if (a - s.errors[u] < kept) {
+      kept = a - s.errors[u];
+      kept_err = s.errors[u];
+    }
+  }
+  for (std::int64_t i = first; i < first + zeros; ++i) {
+    s.exponents[static_cast<std::size_t>(i)] = 0.0;
+    s.errors[static_cast<std::size_t>(i)] = 0.0;
+  }
+  // Keep the order descending (a nonzero exponent next to the zeros may have
+  // been computed with the wrong sign, within its error).
+  std::vector<std::size_t> idx(s.exponents.size());
+  for (std::size_t i = 0; i < idx.size(); ++i) idx[i] = i;
+  std::stable_sort(idx.begin(), idx.end(), [&](std::size_t a, std::size_t b) { return s.exponents[a] > s.exponents[b]; });
+  std::vector<double> ev(idx.size()), er(idx.size());
+  for (std::size_t i = 0; i < idx.size(); ++i) {
+    ev[i] = s.exponents[idx[i]];
+    er[i] = s.errors[idx[i]];
+  }
+  s.exponents.swap(ev);
+  s.errors.swap(er);
+  s.zero_rule = ZeroRule::Exact;
+  s.zero_count = zeros;
+  if (zeros > 0 && zeros < n && !(zeroed < kept)) {
+    std::ostringstream os;
+    os << "the exact count of zero exponents does not separate them from the others: an exponent set to 0 "
+       << "was computed as " << zeroed << ", a nonzero one as " << kept + kept_err << " +- " << kept_err;
+    s.warning = os.str();
+  }
+  s.error_bound = 0.0;
+  for (double e : s.errors) s.error_bound = std::max(s.error_bound, e);
+  measure_pairing(s);
+}
+
 ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& o) {
   ChaosSummary r;
   const auto& e = s.exponents;
   if (e.empty()) throw std::invalid_argument("summarize: empty spectrum");
   r.lambda_max = e.front();
-  // An exponent counts as positive only above its own error estimate
-  // (eigenvalues of Jordan blocks on the unit circle scatter by eps^(1/m)).
   const bool per = s.errors.size() == e.size();
   const double zero = std::max(o.zero_tol, s.error_bound);
-  for (std::size_t i = 0; i < e.size(); ++i)
-    if (e[i] > (per ? std::max(o.zero_tol, s.errors[i]) : zero)) {
-      r.ks_rate += e[i];
-      ++r.unstable_count;
+  if (s.zero_rule == ZeroRule::Exact) {
+    // Exactly (n - zeros) / 2 exponents are positive: the largest ones.
+    r.zero_count = s.zero_count;
+    r.unstable_count = (static_cast<std::int64_t>(e.size()) - s.zero_count) / 2;
+    for (std::int64_t i = 0; i < r.unstable_count; ++i) r.ks_rate += e[static_cast<std::size_t>(i)];
+  } else {
+    // Without an exact count an exponent counts as positive only above its
+    // own error estimate (Jordan blocks on the unit circle scatter by
+    // eps^(1/m)), and as zero within it.
+    r.zero_count = 0;
+    for (std::size_t i = 0; i < e.size(); ++i) {
+      const double tol = per ? std::max(o.zero_tol, s.errors[i]) : zero;
+      if (e[i] > tol) {
+        r.ks_rate += e[i];
+        ++r.unstable_count;
+      } else if (std::fabs(e[i]) <= tol) {
+        ++r.zero_count;
+      }
     }
+  }
   r.ks_density = r.ks_rate / static_cast<double>(L);
   const std::int64_t n = static_cast<std::int64_t>(e.size());
   const std::int64_t keep = n <= o.keep_all ? n : std::min<std::int64_t>(o.top, n);
   r.kept.assign(e.begin(), e.begin() + keep);
   const double span = r.lambda_max > o.zero_tol ? r.lambda_max : 1.0;
-  if (per) {
+  if (s.zero_rule == ZeroRule::Exact) {
+    // Exact zeros sit on the bin edge at 0 and count half on each side.
+    histogram(e, -span, span, o.bins, r.hist_counts, r.hist_edges, std::numeric_limits<double>::denorm_min());
+  } else if (per) {
     // Exponents within their own error of zero are zeros blurred by rounding.
     std::vector<double> v(e);
     for (std::size_t i = 0; i < v.size(); ++i)
@@ -130,7 +208,7 @@ DenseEig dense_eigenvalues(std::vector<double> a, std::int64_t n) {
   return r;
 }
 
-Spectrum dense_spectrum(const Circuit& c) {
+Spectrum dense_spectrum(const Circuit& c, std::int64_t certify_max) {
   Spectrum s;
   s.method = Method::Dense;
   const bool pos = c.position_class();
@@ -159,6 +237,29 @@ Spectrum dense_spectrum(const Circuit& c) {
   // independent check is ln|det M| = sum ln|mu(M)| = 0 (det M = +-1).
   if (pos) s.sum_defect = std::fabs(msum);
   s.error_bound = bound;
+  if (A.n <= certify_max) {
+    // Exact zeros always; certified values for every exponent as well when
+    // LAPACK's are poor (Jordan blocks of nonzero eigenvalues, clusters, huge
+    // entries) or do not separate from the exact zeros.
+    ExactSpectrum ex = exact_spectrum(c, false);
+    apply_exact_zeros(s, ex.zero_exponents);
+    if (!s.warning.empty() || !(s.error_bound <= kCertifyAbove)) {
+      ex = exact_spectrum(c, true);
+      if (ex.exponents.size() == s.exponents.size()) {
+        s.method = Method::Dense;
+        s.warning.clear();
+        s.error_bound = 0.0;
+        for (std::size_t i = 0; i < ex.exponents.size(); ++i) {
+          s.exponents[i] = ex.exponents[i].first;
+          s.errors[i] = ex.exponents[i].second;
+          s.error_bound = std::max(s.error_bound, s.errors[i]);
+        }
+        measure_pairing(s);
+        s.certified_values = true;
+      }
+    }
+    if (pos) s.sum_defect = std::fabs(msum);
+  }
   return s;
 }
 

@@ -36,6 +36,8 @@ inline void expect_identical_records(const toral::PointRecord& a, const toral::P
   d(a.ks_rate, b.ks_rate, "ks_rate");
   d(a.ks_density, b.ks_density, "ks_density");
   EXPECT_EQ(a.unstable_count, b.unstable_count);
+  EXPECT_EQ(a.zero_count, b.zero_count);
+  EXPECT_EQ(a.zero_certified, b.zero_certified);
   v(a.exponents, b.exponents, "exponents");
   v(a.exponent_errors, b.exponent_errors, "exponent_errors");
   d(a.pairing_defect, b.pairing_defect, "pairing_defect");

@@ -143,6 +143,8 @@ PointRecord make_record(std::int64_t i) {
   r.ks_rate = 2.0 * x + 0.125;
   r.ks_density = r.ks_rate / 8.0;
   r.unstable_count = i;
+  r.zero_count = 2 * (i % 3);
+  r.zero_certified = static_cast<std::int64_t>(i % 3) - 1;
   const std::size_t n = 1 + static_cast<std::size_t>((i * 3) % 7);  // ragged: 1..7
   for (std::size_t k = 0; k < n; ++k) r.exponents.push_back(x + 0.1 * static_cast<double>(n - k));
   if (i % 3 != 0) {  // some points estimate no per-exponent errors
@@ -461,9 +463,10 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   EXPECT_EQ(attr_strings(f, "/points/method", "labels"),
             (std::vector<std::string>{"none", "bloch", "dense", "krylov", "tangent"}));
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[0], "ok");
-  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 8u);
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 9u);
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[6], "pending");
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[7], "entanglement_failed");
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels")[8], "inaccurate");
   {
     ASSERT_TRUE(link_exists(f, "/points/message"));
     EXPECT_EQ(shape_of(f, "/points/message"), std::vector<hsize_t>{hP});
@@ -498,6 +501,8 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   expect_f64(f, "/chaos/ks_rate", {hP}, [](const PointRecord& r) { return std::vector{r.ks_rate}; }, recs);
   expect_f64(f, "/chaos/ks_density", {hP}, [](const PointRecord& r) { return std::vector{r.ks_density}; }, recs);
   expect_i64(f, "/chaos/unstable_count", [](const PointRecord& r) { return r.unstable_count; }, recs);
+  expect_i64(f, "/chaos/zero_count", [](const PointRecord& r) { return r.zero_count; }, recs);
+  expect_i64(f, "/chaos/zero_certified", [](const PointRecord& r) { return r.zero_certified; }, recs);
   expect_f64(f, "/chaos/exponents", {hP, K}, [K](const PointRecord& r) { return pad(r.exponents, K); }, recs);
   expect_i64(f, "/chaos/exponent_count",
              [](const PointRecord& r) { return static_cast<std::int64_t>(r.exponents.size()); }, recs);
@@ -625,6 +630,8 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/chaos/lambda_max", "1/period"},
       {"/chaos/ks_rate", "nats/period"},
       {"/chaos/ks_density", "nats/(period*site)"},
+      {"/chaos/zero_count", "1"},
+      {"/chaos/zero_certified", "1"},
       {"/chaos/exponents", "1/period"},
       {"/chaos/histogram/counts", "1"},
       {"/chaos/histogram/edges", "1/period"},
@@ -662,9 +669,9 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/entanglement/stabilizer/profile", "nats"},
   };
   const auto all = datasets_of(f);
-  // /points: params + index, status, message, method, wall_time; /chaos: 12
+  // /points: params + index, status, message, method, wall_time; /chaos: 14
   // + 8 in /chaos/solver; /limit: 5; /bounds: 9
-  const std::size_t expected_count = ax.param_names.size() + 5 + 12 + 8 + (ax.bulk_limit ? 5 : 0) + 9 + ent_count;
+  const std::size_t expected_count = ax.param_names.size() + 5 + 14 + 8 + (ax.bulk_limit ? 5 : 0) + 9 + ent_count;
   EXPECT_EQ(all.size(), expected_count);
   for (const auto& d : all) {
     h5::Object o(H5Oopen(f, d.c_str(), H5P_DEFAULT), H5Oclose, path, d);

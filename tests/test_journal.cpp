@@ -112,6 +112,8 @@ PointRecord make_record(std::int64_t i) {
   r.ks_rate = 1e300 * static_cast<double>(i);
   r.ks_density = -static_cast<double>(i) / 7.0;
   r.unstable_count = i % 2 ? std::numeric_limits<std::int64_t>::max() : -1;
+  r.zero_count = i % 2 ? -1 : std::numeric_limits<std::int64_t>::min();
+  r.zero_certified = static_cast<std::int64_t>(i % 3) - 1;
   r.exponents = vec(u, u % 9);
   if (i % 3) r.exponent_errors = vec(u + 5, r.exponents.size());
   r.pairing_defect = special(u + 2);
@@ -379,10 +381,13 @@ TEST(Journal, BadHeadersAreErrors) {
     expect_error(b, "unsupported journal format version " + std::to_string(kJournalVersion + 1));
   }
   {
-    // a journal of the previous format (version 1, before /entanglement) is refused by name
-    std::string b = full;
-    b[8] = 1;
-    expect_error(b, "unsupported journal format version 1 (this toral reads version 2)");
+    // journals of earlier formats (1: before /entanglement, 2: before the
+    // exact zero count) are refused by name
+    for (char v : {1, 2}) {
+      std::string b = full;
+      b[8] = v;
+      expect_error(b, "unsupported journal format version " + std::to_string(v) + " (this toral reads version 3)");
+    }
   }
   {
     std::string b = full;

@@ -12,7 +12,10 @@ import pytest
 from conftest import ROOT, mpi_env
 
 # Dense points of a few hundredths of a second each, mixed sizes, a disorder
-# ensemble (seeds) and a clean ring: long enough to be killed mid-run.
+# ensemble (seeds) and a clean ring: long enough to be killed mid-run. The
+# drawn gates are hyperbolic (a, b >= 1): with a = 0 some open chains have
+# large Jordan blocks whose LAPACK exponents are off by ~0.4 (status 8 beyond
+# spectrum.certify_max, or a slow certified recomputation below it).
 SLOW = """
 title = "batch test"
 [[sweep]]
@@ -22,7 +25,7 @@ boundary = "open"
 seeds = { from = 1, to = 10 }
 [sweep.bond]
 family = "shear2"
-a = { draw = [-2, 2] }
+a = { draw = [1, 2] }
 b = { draw = [1, 2] }
 
 [[sweep]]
