@@ -621,6 +621,29 @@ Spectrum bloch_spectrum(const Circuit& c) {
       zeros += z;
     }
     for (const auto& [d, total] : rz.orbits) {
+      // Orders 1, 2, 3, 4, 6 have at most the two momenta k and -k, whose
+      // exponents coincide: they take the certified exponents of R_d directly
+      // (exact zeros, rigorous radii), whatever LAPACK made of the colliding
+      // eigenvalues there.
+      std::vector<std::int64_t> members;
+      for (std::int64_t m = 0; m < N; ++m)
+        if (N / std::gcd(m, N) == d) members.push_back(m);
+      if (members.size() <= 2) {
+        const auto ex = exact->orbit_exponents(d);
+        if (ex.size() == 4 * members.size()) {
+          for (std::size_t i = 0; i < members.size(); ++i) {
+            KExponents& r = per[static_cast<std::size_t>(members[i])];
+            for (int j = 0; j < 4; ++j) {
+              // sorted list: each value appears once per member
+              const auto& [v, e] = ex[members.size() * static_cast<std::size_t>(j) + i];
+              r.lam[j] = v;
+              r.err4[j] = e;
+            }
+          }
+          zeros += total;
+          continue;
+        }
+      }
       // The `total` exponents nearest zero among all momenta of order d.
       std::vector<std::tuple<double, std::int64_t, int>> cand;
       for (std::int64_t m = 0; m < N; ++m)
@@ -681,17 +704,49 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
   // The two nonnegative exponents at k with the exact zeros imposed: on an
   // arc where 2 (4) of the block's eigenvalues lie on the unit circle, a2
   // (a1 and a2) vanish identically.
+  // Blocks whose double-precision values are poor (huge gate entries: the
+  // small eigenvalues lose their digits, which breaks the exact +- pairing)
+  // are evaluated from certified enclosures instead, here as in the ring.
   struct Pairs {
-    BlochEvaluator& ev;
+    BlochEvaluator& raw;   // values only (fast)
+    BlochEvaluator& cond;  // with condition numbers, for error estimates
     const BlochExact* exact;
+    // k = 0 and k = pi: real blocks whose eigenvalues may collide, where no
+    // enclosure isolates them; the certified exponents of R_1 and R_2 (the
+    // integer polynomials det(x - M(+-1))) instead.
+    std::vector<std::pair<double, double>> at_end[2];
+    bool certified(double k, double v[4], double rad[4]) {
+      if (!exact) return false;
+      if (k == 0.0 || k == kPi) {
+        auto& e = at_end[k == 0.0 ? 0 : 1];
+        if (e.empty()) e = exact->orbit_exponents(k == 0.0 ? 1 : 2);
+        if (e.size() != 4) return false;
+        for (int j = 0; j < 4; ++j) std::tie(v[j], rad[j]) = e[static_cast<std::size_t>(j)];
+        return true;
+      }
+      return exact->certified_exponents_at(k, v, rad);
+    }
     std::pair<double, double> pair_at(double k) {
       const int on = exact ? exact->on_circle_near(k) : 0;
       if (on >= 4) return {0.0, 0.0};
-      auto p = ev.pair_at(k);
+      const KExponents r = raw.at(k);
+      std::pair<double, double> p{0.5 * (r.lam[0] - r.lam[3]), 0.5 * (r.lam[1] - r.lam[2])};
+      const double defect = std::max(std::abs(r.lam[0] + r.lam[3]), std::abs(r.lam[1] + r.lam[2]));
+      double v[4], rad[4];
+      if (!(defect <= kRecomputeAbove) && certified(k, v, rad)) p = {0.5 * (v[0] - v[3]), 0.5 * (v[1] - v[2])};
       if (on >= 2) p.second = 0.0;
       return p;
     }
-  } ev{ev_raw, exact.get()};
+    double err_at(double k) {
+      const int on = exact ? exact->on_circle_near(k) : 0;
+      const KExponents r = cond.at(k);
+      double e = on >= 2 ? std::max(r.err4[0], r.err4[3]) : r.err;
+      double v[4], rad[4];
+      if (!(e <= kRecomputeAbove) && certified(k, v, rad))
+        e = on >= 2 ? std::max(rad[0], rad[3]) : std::max({rad[0], rad[1], rad[2], rad[3]});
+      return e;
+    }
+  } ev{ev_raw, ev_cond, exact.get()};
   // Arcs of [0, pi] to integrate over, split at every kink: between kinks
   // the integrand is analytic; at a kink two eigenvalues leave the circle and
   // the exponents grow like sqrt(|k - k0|), which the adaptive rule handles at
@@ -755,7 +810,7 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
       }
     }
     // Add the eigen-solver error estimate at the maximiser.
-    ref_err = std::max(best_err, ev_cond.at(kbest).err);
+    ref_err = std::max(best_err, ev.err_at(kbest));
   }
   out.lambda_max = lmax;
 
@@ -792,12 +847,12 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
     // (sqrt(eps) in a neighbourhood of width ~sqrt(eps)).
     double pointwise = 0.0;
     int samples = 0;
-    for (int i = 0; i <= Nscan; i += 8, ++samples) {
-      const double k = i == Nscan ? kPi : hs * i;
-      const int on = exact ? exact->on_circle_near(k) : 0;
-      if (on >= 4) continue;
-      const KExponents r = ev_cond.at(k);
-      pointwise += on >= 2 ? std::max(r.err4[0], r.err4[3]) : r.err;
+    // (Cell midpoints: never exactly k = 0 or pi, where eigenvalues of real
+    // blocks may collide and no enclosure isolates them.)
+    for (int i = 0; i < Nscan; i += 8, ++samples) {
+      const double k = hs * (i + 0.5);
+      if (exact && exact->on_circle_near(k) >= 4) continue;
+      pointwise += ev.err_at(k);
     }
     pointwise /= std::max(1, samples);
     out.ks_density = total / kPi;

@@ -162,6 +162,9 @@ struct BlochExact::Impl {
   void find_kinks(const fmpz_poly_struct* D);
   int count_at_trace(double y) const;
   std::int64_t orbit_total(std::int64_t d) const;
+  void orbit_polynomial(fmpz_poly_struct* r, std::int64_t d) const;
+  template <class MakeZ>
+  bool exponents_at(MakeZ&& make_z, double value[4], double radius[4]) const;
 };
 
 void BlochExact::Impl::build(const Mat4& G, const Mat2* site) {
@@ -399,6 +402,14 @@ int BlochExact::Impl::count_at_trace(double y) const {
 std::int64_t BlochExact::Impl::orbit_total(std::int64_t d) const {
   const auto it = orbit_zeros.find(d);
   if (it != orbit_zeros.end()) return it->second;
+  Poly r;
+  orbit_polynomial(r.get(), d);
+  const CircleCensus cc = circle_census(r.get());
+  orbit_zeros[d] = cc.on_circle;
+  return cc.on_circle;
+}
+
+void BlochExact::Impl::orbit_polynomial(fmpz_poly_struct* r, std::int64_t d) const {
   auto* c = ctx.get();
   Poly phi;
   fmpz_poly_cyclotomic(phi.get(), static_cast<ulong>(d));
@@ -406,12 +417,18 @@ std::int64_t BlochExact::Impl::orbit_total(std::int64_t d) const {
   fmpz_mpoly_set_fmpz_poly(Phi.get(), phi.get(), kZ, c);
   if (!fmpz_mpoly_resultant(R.get(), F->get(), Phi.get(), kZ, c))
     throw std::runtime_error("BlochExact: resultant failed");
-  Poly r;
-  if (!fmpz_mpoly_get_fmpz_poly(r.get(), R.get(), kLambda, c))
+  if (!fmpz_mpoly_get_fmpz_poly(r, R.get(), kLambda, c))
     throw std::logic_error("BlochExact: resultant depends on z");
+}
+
+std::vector<std::pair<double, double>> BlochExact::orbit_exponents(std::int64_t d) const {
+  Poly r;
+  impl_->orbit_polynomial(r.get(), d);
   const CircleCensus cc = circle_census(r.get());
-  orbit_zeros[d] = cc.on_circle;
-  return cc.on_circle;
+  std::vector<std::pair<double, double>> out;
+  if (!certified_log_moduli(r.get(), cc, out)) return {};
+  std::sort(out.begin(), out.end(), [](const auto& a, const auto& b) { return a.first > b.first; });
+  return out;
 }
 
 BlochExact::BlochExact(const Mat4& G, const Mat2* site) : impl_(std::make_unique<Impl>()) { impl_->build(G, site); }
@@ -486,16 +503,36 @@ RingZeros BlochExact::ring_zeros(std::int64_t n) const {
 }
 
 bool BlochExact::certified_exponents(std::int64_t m, std::int64_t n, double value[4], double radius[4]) const {
+  return impl_->exponents_at(
+      [&](acb_t z, slong prec) {
+        CBall x;
+        fmpq_t q;
+        fmpq_init(q);
+        fmpq_set_si(q, 2 * m, static_cast<ulong>(n));
+        arb_set_fmpq(acb_realref(x.get()), q, prec);
+        fmpq_clear(q);
+        acb_exp_pi_i(z, x.get(), prec);
+      },
+      value, radius);
+}
+
+bool BlochExact::certified_exponents_at(double k, double value[4], double radius[4]) const {
+  return impl_->exponents_at(
+      [&](acb_t z, slong prec) {
+        CBall x;
+        arb_set_d(acb_imagref(x.get()), k);
+        acb_exp(z, x.get(), prec);
+      },
+      value, radius);
+}
+
+template <class MakeZ>
+bool BlochExact::Impl::exponents_at(MakeZ&& make_z, double value[4], double radius[4]) const {
   for (slong prec = kStartPrec; prec <= kMaxPrec; prec *= 2) {
-    CBall z, x;
-    fmpq_t q;
-    fmpq_init(q);
-    fmpq_set_si(q, 2 * m, static_cast<ulong>(n));
-    arb_set_fmpq(acb_realref(x.get()), q, prec);
-    fmpq_clear(q);
-    acb_exp_pi_i(z.get(), x.get(), prec);
+    CBall z;
+    make_z(z.get(), prec);
     std::vector<RootBall> roots;
-    if (!factor_roots(roots, impl_->factors, z.get(), prec)) continue;
+    if (!factor_roots(roots, factors, z.get(), prec)) continue;
     std::vector<std::pair<double, double>> ex;
     Ball a;
     bool ok = true;

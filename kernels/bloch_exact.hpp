@@ -80,11 +80,19 @@ class BlochExact {
 
   RingZeros ring_zeros(std::int64_t cells) const;
 
+  // ln|mu| of every root of R_d = Res_z(F, Phi_d), i.e. the exponents of S at
+  // all momenta of order d together (4 phi(d) values, descending), from
+  // certified enclosures: the unit-circle roots as exact 0, the others as
+  // (midpoint, radius). Empty when the enclosures cannot be refined.
+  std::vector<std::pair<double, double>> orbit_exponents(std::int64_t d) const;
+
   // The four exponents ln|mu| of S at k = 2 pi m / n, descending, from
   // certified root enclosures of F(lambda, exp(ik)) (arb): value[j] is within
   // radius[j] of the exact exponent. Returns false when the roots cannot be
   // isolated within the precision limit (e.g. exactly on a kink).
   bool certified_exponents(std::int64_t m, std::int64_t n, double value[4], double radius[4]) const;
+  // The same at k (radians, taken as the exact binary value of the double).
+  bool certified_exponents_at(double k, double value[4], double radius[4]) const;
 
  private:
   struct Impl;
