@@ -104,6 +104,9 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   const SweepSpec& s = c.sweeps[static_cast<std::size_t>(p.sweep)];
   const std::size_t nl = c.bounds.regions.size(), nn = c.bounds.local_dims.size();
   if (json) {
+    // As in the file: one error per exponent, NaN (null) where not estimated.
+    std::vector<double> errors = r.exponent_errors;
+    if (errors.size() != r.exponents.size()) errors.assign(r.exponents.size(), kNaN);
     os << "{\n  \"index\": " << p.index << ",\n  \"sweep_name\": " << json_str(s.name) << ",\n";
     for (std::size_t i = 0; i < t.names.size(); ++i)
       os << "  \"/points/" << t.names[i] << "\": "
@@ -114,7 +117,8 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
        << json_num(r.ks_rate) << ",\n  \"/chaos/ks_density\": " << json_num(r.ks_density)
        << ",\n  \"/chaos/unstable_count\": " << r.unstable_count << ",\n  \"/chaos/zero_count\": " << r.zero_count
        << ",\n  \"/chaos/zero_certified\": " << r.zero_certified << ",\n  \"/chaos/exponents\": "
-       << json_array(r.exponents) << ",\n  \"/chaos/accuracy/pairing_defect\": " << json_num(r.pairing_defect)
+       << json_array(r.exponents) << ",\n  \"/chaos/exponent_error\": " << json_array(errors)
+       << ",\n  \"/chaos/accuracy/pairing_defect\": " << json_num(r.pairing_defect)
        << ",\n  \"/chaos/accuracy/sum_defect\": " << json_num(r.sum_defect)
        << ",\n  \"/chaos/accuracy/error_bound\": " << json_num(r.error_bound)
        << ",\n  \"/chaos/histogram/counts\": " << json_array(r.hist_counts)

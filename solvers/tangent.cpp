@@ -6,6 +6,7 @@
 #include <algorithm>
 #include <cmath>
 #include <exception>
+#include <limits>
 #include <memory>
 #include <string>
 #include <vector>
@@ -143,35 +144,68 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
       }
     }
     struct Item {
-      double lam, err, drift;
+      double lam, err2, se, drift;  // err2: err_j^2 without the neighbour term
+      double err = 0.0;
       std::string src;
     };
     std::vector<Item> items;
+    constexpr double kEps = std::numeric_limits<double>::epsilon();
+    // The halves: the first and the last `half` windows (the middle one is
+    // left out when W is odd).
+    const int half = nwin / 2;
+    // Bias per unit of D if the window means approach lambda like a / t, t
+    // counted from the initial vectors (a Jordan block; header comment):
+    // bias = a ln((tau + T) / tau) / T, D = a (ln((tau + h) / tau)
+    // - ln((tau + T) / (tau + T - h))) / h, h = the halves' length. Only for
+    // time-periodic circuits (a redrawn cocycle has no Jordan blocks).
+    double jordan = 1.0;
+    if (g.time_periodic && o.transient > 0) {
+      const double tau = static_cast<double>(o.transient), Tm = static_cast<double>(T),
+                   h = static_cast<double>(half * wlen);
+      const double d = (std::log1p(h / tau) + std::log1p(-h / (tau + Tm))) / h;
+      if (d > 0) jordan = std::max(1.0, std::log1p(Tm / tau) / Tm / d);
+    }
     for (auto& cp : cs) {
       Cocycle& c = *cp;
       for (int j = 0; j < c.k; ++j) {
-        const double lam = c.total[static_cast<std::size_t>(j)] / static_cast<double>(T);
+        const std::size_t jj = static_cast<std::size_t>(j);
+        const double lam = c.total[jj] / static_cast<double>(T);
         double ss = 0.0;
         for (const auto& mw : c.means) {
-          const double d = mw[static_cast<std::size_t>(j)] - lam;
+          const double d = mw[jj] - lam;
           ss += d * d;
         }
-        const double err = std::sqrt(ss / (static_cast<double>(nwin) * (nwin - 1)));
+        const double se = std::sqrt(ss / (static_cast<double>(nwin) * (nwin - 1)));
         double first = 0.0, second = 0.0;
-        const int half = nwin / 2;
-        for (int w = 0; w < half; ++w) first += c.means[static_cast<std::size_t>(w)][static_cast<std::size_t>(j)];
-        for (int w = nwin - half; w < nwin; ++w) second += c.means[static_cast<std::size_t>(w)][static_cast<std::size_t>(j)];
+        for (int w = 0; w < half; ++w) first += c.means[static_cast<std::size_t>(w)][jj];
+        for (int w = nwin - half; w < nwin; ++w) second += c.means[static_cast<std::size_t>(w)][jj];
         const double drift = std::fabs(second - first) / half;
-        if (!std::isfinite(lam) || !std::isfinite(err))
+        const double bias = jordan * drift;
+        const double rounding = 256.0 * kEps * std::max(1.0, std::fabs(lam));
+        const double err2 = se * se + bias * bias + rounding * rounding;
+        if (!std::isfinite(lam) || !std::isfinite(err2))
           throw std::runtime_error("tangent_top: non-finite exponent (a tangent vector collapsed)");
-        items.push_back({lam, err, drift, operator_name(c.op)});
+        items.push_back({lam, err2, se, drift, 0.0, operator_name(c.op)});
       }
     }
     std::stable_sort(items.begin(), items.end(), [](const Item& a, const Item& b) { return a.lam > b.lam; });
+    // Unresolved neighbours (header comment): half the spread of the
+    // estimates within 2 / (transient + T) of lambda_j. Over all computed
+    // exponents of both cocycles (sorted descending), before the top k are kept.
+    const double resolution = 2.0 / static_cast<double>(o.transient + T);
+    std::size_t hi = 0, lo = 0;  // the highest and lowest estimate within the resolution of item i
+    for (std::size_t i = 0; i < items.size(); ++i) {
+      while (items[hi].lam - items[i].lam >= resolution) ++hi;
+      lo = std::max(lo, i);
+      while (lo + 1 < items.size() && items[i].lam - items[lo + 1].lam < resolution) ++lo;
+      const double spread = 0.5 * (items[hi].lam - items[lo].lam);
+      items[i].err = std::sqrt(items[i].err2 + spread * spread);
+    }
     const std::size_t K = std::min<std::size_t>(static_cast<std::size_t>(o.k), items.size());
     for (std::size_t i = 0; i < K; ++i) {
       res.exponents.push_back(items[i].lam);
       res.errors.push_back(items[i].err);
+      res.standard_errors.push_back(items[i].se);
       res.drift.push_back(items[i].drift);
       res.source.push_back(items[i].src);
       res.max_error = std::max(res.max_error, items[i].err);
