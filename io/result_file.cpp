@@ -478,7 +478,8 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
                "initial state (docs/entanglement.md); NaN (int64: -1) where a region does not fit "
                "the point's lattice or nothing was computed");
   h5::set_attr(g, "slope_window",
-               "least-squares slope of S_A(t) over t = t0..T, t0 = min(ceil(3T/4), T-1); NaN for T = 0");
+               "least-squares slope of S_A(t), and of ln vol(P_A S^t) for region_rate, over t = t0..T, "
+               "t0 = min(ceil(3T/4), T-1); NaN for T = 0");
   h5::set_attr(g, "saturation_fraction", 0.99);
   h5::set_attr(g, "violation_tolerance", 1e-9);
   {
