@@ -410,6 +410,38 @@ local_dims = [3]
   EXPECT_NEAR(r.gauss_slope_over_region_rate[0], 1.0, vacuum_slope_tolerance(4, 40) / r.ent_region_rate[0]);
 }
 
+TEST(Entangle, FiniteNEntropyWithoutChaos) {
+  // At finite N, Lambda is no bound even with every exponent 0: the bond
+  // gate q_b += q_a ([[1, 0], [1, 1]], unipotent: exponents exactly 0) is the
+  // generalised CNOT; on |p = 0> (x) |q = 0> it makes sum_q |q>|q> / sqrt(N),
+  // maximally entangled, so S_A(1) = ln N for A = {0} (common practice). The
+  // light cone (2 c ln N per period, c = 1) and the cap (ln N) hold.
+  const auto recs = run_points(R"([[sweep]]
+sites = 2
+boundary = "open"
+[sweep.bond]
+matrix = [[1, 0], [1, 1]]
+[entanglement]
+periods = 4
+regions = [1]
+gaussian = false
+stabilizer_dims = [3, 4]
+[[entanglement.initial]]
+sites = 0
+stabilizer = "momentum"
+)");
+  const PointRecord& r = recs.at(0);
+  ASSERT_EQ(r.status, 0) << r.message;
+  EXPECT_EQ(r.ent_lyapunov_rate[0], 0.0);
+  for (std::size_t j = 0; j < 2; ++j) {
+    const double lnN = std::log(j == 0 ? 3.0 : 4.0);
+    EXPECT_EQ(r.stab_entropy[j * 5 + 0], 0.0);
+    EXPECT_NEAR(r.stab_entropy[j * 5 + 1], lnN, 1e-12);
+    EXPECT_EQ(r.stab_violations[j], 0);
+    EXPECT_FALSE(std::isfinite(r.stab_slope_over_lyapunov[j]));  // any slope over the rate 0: +-inf or NaN
+  }
+}
+
 TEST(Entangle, BoundsCutsPerBlockSize) {
   // /bounds counts the cuts of each block size (block_cuts): on an open chain
   // of L = 6 in the bulk, blocks of 1..4 sites fit strictly inside (2 cuts),
