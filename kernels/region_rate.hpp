@@ -31,24 +31,29 @@
 //
 // Why exactly. The rows are propagated as exact integers (FLINT fmpz),
 // R_{t+1} = R_t S on the light-cone columns (those that can be non-zero), and
-// ln vol(R_t) = (1/2) ln det G_t from the exact integer Gram matrix
-// G_t = R_t R_t^T (fmpz_mat_gram, fmpz_mat_det; det G_t >= 1 since R_t is an
-// integer matrix of full row rank). G_t's determinant is the product of the
-// squared diagonal of the QR factorisation of R_t's rows, so this is the QR
-// (Benettin) log-volume without rounding. A floating QR that re-orthonormalises
-// the rows every period is NOT enough: rounding seeds components along the
-// directions the region's rows miss exactly, which then grow at the generic
-// rate, and the floating rate drifts from the region's rate to Lambda_|A|
-// (measured: a symmetric region of an 8-site ring whose exact rate is
-// 0.74 Lambda reaches Lambda in floating point by t = 100).
+// ln vol(R_t) = (1/2) ln det G_t, G_t = R_t R_t^T, is evaluated from the exact
+// R_t each t: sum_i ln L_ii of the Cholesky factor of G_t formed in arb ball
+// arithmetic at a working precision that doubles until the certified radius
+// is below 1e-14 relative (it has to cover the condition number of G_t, about
+// e^{2 (lambda_1 - lambda_min) t} over the region's directions, not the size
+// of R_t's entries; it carries over from one t to the next); past four times
+// the entries' bit size the exact determinant of the exact Gram matrix
+// (fmpz_mat_gram, fmpz_mat_det; det G_t >= 1, R_t being an integer matrix of
+// full row rank) is taken. det G_t is the product of the squared diagonal of
+// the QR factorisation of R_t's rows, so this is the QR (Benettin) log-volume
+// without accumulated rounding: each t starts again from the exact rows. A
+// floating QR that re-orthonormalises the rows every period is NOT enough:
+// rounding seeds components along the directions the region's rows miss
+// exactly, which then grow at the generic rate, and the floating rate drifts
+// from the region's rate to Lambda_|A| (bench/region_rate.py: the symmetric
+// region {0, 4} of an 8-site ring, exact rate 0.736 Lambda_2, gives Lambda_2
+// in floating point at T = 200).
 //
 // Cost: the entries of R_t have about lambda_max t / ln 2 bits; per t the
-// update costs 2m * nnz(S on the light cone) small-by-big products and the
-// Gram matrix m(2m+1) dot products of light-cone length (at most 2L) of
-// big integers, the determinant a 2m x 2m exact determinant. With `from_t`
-// the Gram matrix and determinant are formed only for t >= from_t (the rows
-// are still propagated from t = 0). Memory: R_t and G_t
-// (region_rate_work_bytes).
+// update costs 2m * nnz(S on the light cone) small-by-big products; on the
+// window (t >= from_t) the Gram matrix costs m(2m+1) dot products of
+// light-cone length (at most 2L) at the working precision and the Cholesky
+// factor O(m^3). Memory: R_t and G_t (region_rate_work_bytes).
 #pragma once
 #include <cstddef>
 #include <cstdint>
