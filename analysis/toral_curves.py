@@ -1,13 +1,16 @@
 #!/usr/bin/python3
-"""Exact entanglement curves of a toral result file (layout version 1,
-/entanglement, docs/layout.md), next to their bounds.
+"""Exact entanglement curves of a toral result file (layout version 2,
+/entanglement, docs/layout.md), next to their bounds and rates.
 
 For one point, one panel per region: the certified Gaussian S_A(t) and the
-stabilizer S_A(t) for every local dimension N, with the Lyapunov line
-S_A(0) + Lambda_|A| t (/entanglement/lyapunov_rate), the light-cone line
-S_A(0) + 2 c ln N t and the Hilbert-space cap min(|A|, L - |A|) ln N of each N.
-With --table: per point and region the late-time slopes and their ratios to
-Lambda_|A| and to the light-cone rate, as stored by toral.
+stabilizer S_A(t) for every local dimension N, with two rate lines that are
+not bounds: S_A(0) + Lambda_|A| t, the asymptotic growth rate of a generic
+region (/entanglement/lyapunov_rate), and S_A(0) + r_A t, the rate this
+region reaches (/entanglement/region_rate); and the two bounds (theorems) of
+each N: the light-cone line S_A(0) + 2 c ln N t and the Hilbert-space cap
+min(|A|, L - |A|) ln N. With --table: per point and region the late-time
+slopes and their ratios to Lambda_|A|, to the region rate and to the
+light-cone rate, as stored by toral.
 
     toral_curves.py run.h5 --point 3 -o curves.png
     toral_curves.py run.h5 --table
@@ -44,10 +47,12 @@ class Curves:
     t: np.ndarray               # (nT,)
     region_size: np.ndarray     # (nR,)
     cuts: np.ndarray            # (P, nR), -1 where the region does not fit
-    lyapunov_rate: np.ndarray   # (P, nR)
+    lyapunov_rate: np.ndarray   # (P, nR): Lambda_|A|, asymptotic rate of a generic region (not a bound)
+    region_rate: np.ndarray     # (P, nR): the rate each region reaches (not a bound)
     gauss: np.ndarray | None    # (P, nR, nT)
     gauss_slope: np.ndarray | None
     gauss_ratio: np.ndarray | None
+    gauss_ratio_region: np.ndarray | None
     local_dim: np.ndarray       # (nM,), empty without stabilizer curves
     stab: np.ndarray | None     # (P, nM, nR, nT)
     stab_slope: np.ndarray | None
@@ -72,8 +77,10 @@ def load(path: str) -> Curves:
         return Curves(
             path=path, point_count=int(get("cuts").shape[0]), status=status, t=get("t"),
             region_size=get("region_size"), cuts=get("cuts"), lyapunov_rate=get("lyapunov_rate"),
+            region_rate=get("region_rate"),
             gauss=get("gaussian/entropy") if g else None, gauss_slope=get("gaussian/slope") if g else None,
             gauss_ratio=get("gaussian/slope_over_lyapunov") if g else None,
+            gauss_ratio_region=get("gaussian/slope_over_region_rate") if g else None,
             local_dim=get("stabilizer/local_dim") if s else np.zeros(0, dtype=np.int64),
             stab=get("stabilizer/entropy") if s else None, stab_slope=get("stabilizer/slope") if s else None,
             stab_ratio_lyap=get("stabilizer/slope_over_lyapunov") if s else None,
@@ -82,13 +89,16 @@ def load(path: str) -> Curves:
 
 
 def _fmt(x) -> str:
-    return "nan" if not math.isfinite(float(x)) else f"{float(x):.4g}"
+    x = float(x)
+    if math.isnan(x):
+        return "nan"
+    return ("inf" if x > 0 else "-inf") if math.isinf(x) else f"{x:.4g}"
 
 
 def format_table(c: Curves) -> str:
-    head = ["point", "region", "|A|", "Lambda_A"]
+    head = ["point", "region", "|A|", "Lambda_A", "rate_A"]
     if c.gauss is not None:
-        head += ["gauss_slope", "gauss/Lambda"]
+        head += ["gauss_slope", "gauss/Lambda", "gauss/rate"]
     for N in c.local_dim:
         head += [f"N{N}_slope", f"N{N}/Lambda", f"N{N}/light"]
     rows = ["  ".join(head)]
@@ -96,9 +106,10 @@ def format_table(c: Curves) -> str:
         for k in range(c.region_size.size):
             if c.cuts[p, k] < 0:
                 continue  # the region does not fit this lattice
-            r = [str(p), str(k), str(int(c.region_size[k])), _fmt(c.lyapunov_rate[p, k])]
+            r = [str(p), str(k), str(int(c.region_size[k])), _fmt(c.lyapunov_rate[p, k]),
+                 _fmt(c.region_rate[p, k])]
             if c.gauss is not None:
-                r += [_fmt(c.gauss_slope[p, k]), _fmt(c.gauss_ratio[p, k])]
+                r += [_fmt(c.gauss_slope[p, k]), _fmt(c.gauss_ratio[p, k]), _fmt(c.gauss_ratio_region[p, k])]
             for j in range(c.local_dim.size):
                 r += [_fmt(c.stab_slope[p, j, k]), _fmt(c.stab_ratio_lyap[p, j, k]),
                       _fmt(c.stab_ratio_light[p, j, k])]
@@ -123,13 +134,18 @@ def plot_point(c: Curves, point: int, out: str) -> None:
     t = c.t.astype(float)
     for col, k in enumerate(regions):
         lam = float(c.lyapunov_rate[point, k])
+        rate = float(c.region_rate[point, k])
         for row, kind in enumerate(rows):
             ax = axes[row][col]
             if kind == "gaussian":
                 S = c.gauss[point, k]
                 ax.plot(t, S, color="k", lw=1.6, label="Gaussian (certified)")
                 if math.isfinite(lam) and np.isfinite(S[0]):
-                    ax.plot(t, S[0] + lam * t, color="k", ls=":", lw=1, label=r"$S(0)+\Lambda_{|A|}t$")
+                    ax.plot(t, S[0] + lam * t, color="k", ls=":", lw=1,
+                            label=r"$S(0)+\Lambda_{|A|}t$ (generic region)")
+                if math.isfinite(rate) and np.isfinite(S[0]):
+                    ax.plot(t, S[0] + rate * t, color="tab:red", ls=(0, (1, 2, 4, 2)), lw=1,
+                            label=r"$S(0)+r_A t$ (this region)")
             else:
                 for j, N in enumerate(c.local_dim):
                     S = c.stab[point, j, k]
@@ -145,7 +161,8 @@ def plot_point(c: Curves, point: int, out: str) -> None:
             ax.set_title(f"point {point}, region {k} (|A| = {int(c.region_size[k])}, c = {int(c.cuts[point, k])})",
                          fontsize=9)
             ax.legend(fontsize=7, loc="upper left")
-    fig.suptitle("dashed: Hilbert-space cap; dash-dot: light cone (capped); dotted: Lyapunov rate", fontsize=8)
+    fig.suptitle("bounds (theorems): dashed Hilbert-space cap, dash-dot light cone (capped); rates, not bounds: "
+                 "dotted asymptotic rate of a generic region, red that region's rate", fontsize=8)
     fig.tight_layout()
     fig.savefig(out, dpi=120)
     plt.close(fig)

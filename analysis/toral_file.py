@@ -1,4 +1,4 @@
-"""Opening a toral result file for the analysis scripts (layout version 1,
+"""Opening a toral result file for the analysis scripts (layout version 2,
 docs/layout.md): one place for the checks and their one-line messages."""
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ import os
 
 import numpy as np
 
-LAYOUT_VERSION = 1
+LAYOUT_VERSION = 2
 
 
 def open_result(path: str, error: type[Exception]):

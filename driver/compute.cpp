@@ -51,9 +51,11 @@ int ranks_per_point(const Config& c, const std::vector<Point>& points, int world
   return static_cast<int>(std::clamp<std::int64_t>(want, 1, world));
 }
 
-int region_cuts(const Config& c, const Point& p) {
-  if (p.boundary == Boundary::Open && c.bounds.placement == "edge") return 1;
-  return 2;
+std::vector<std::int64_t> region_cuts(const Config& c, const Point& p) {
+  std::vector<std::int64_t> cuts;
+  for (std::int64_t ell : c.bounds.regions)
+    cuts.push_back(block_cuts(p.L, p.boundary, c.bounds.placement == "edge", ell));
+  return cuts;
 }
 
 double estimated_flops(const Config& c, const Point& p) {
@@ -75,15 +77,17 @@ double estimated_flops(const Config& c, const Point& p) {
 namespace {
 
 // Bounds from whatever top of the spectrum is known.
-void fill_bounds(PointRecord& r, const Config& c, std::int64_t L, const std::vector<double>& top, double lambda_max,
+void fill_bounds(PointRecord& r, const Config& c, const Point& p, const std::vector<double>& top, double lambda_max,
                  double ks_rate) {
   BoundsInput bi;
-  bi.L = L;
+  bi.L = p.L;
+  bi.boundary = p.boundary;
+  bi.edge = c.bounds.placement == "edge";
   bi.top = top;
   bi.lambda_max = lambda_max;
   bi.ks_rate = ks_rate;
-  bi.cuts = static_cast<int>(r.cuts);
   const Bounds b = entanglement_bounds(bi, c.bounds.regions, c.bounds.local_dims);
+  r.cuts = b.cuts;
   r.lyapunov_rate = b.lyapunov_rate;
   r.hilbert_cap = b.hilbert_cap;
   r.lightcone_rate = b.lightcone_rate;
@@ -175,7 +179,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.error_bound = 0.0;
       for (double e : err) r.error_bound = std::max(r.error_bound, e);
       // Only the top is known: no KS rate, no histogram (docs/model.md).
-      fill_bounds(r, c, p.L, top, r.lambda_max, kNaN);
+      fill_bounds(r, c, p, top, r.lambda_max, kNaN);
     } else {
     const Circuit circ = materialize(gs);
     circ.validate();
@@ -230,7 +234,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.error_bound = sp.error_bound;
       r.hist_counts = cs.hist_counts;
       r.hist_edges = cs.hist_edges;
-      fill_bounds(r, c, circ.L, sp.exponents, cs.lambda_max, cs.ks_rate);
+      fill_bounds(r, c, p, sp.exponents, cs.lambda_max, cs.ks_rate);
     }
     }
     if (c.spectrum.bulk_limit && gs.translation_invariant && gs.time_periodic) {

@@ -26,8 +26,9 @@ inline bool distributed_method(Method m) { return m == Method::Krylov || m == Me
 // automatically about one rank per 250 000 matrix rows; at most `world`.
 int ranks_per_point(const Config& c, const std::vector<Point>& points, int world);
 
-// Number of cuts the bound regions have at a point (see docs/bounds).
-int region_cuts(const Config& c, const Point& p);
+// Cuts of the /bounds blocks at a point, per region size ell of
+// bounds.regions (block_cuts with bounds.placement; docs/bounds.md).
+std::vector<std::int64_t> region_cuts(const Config& c, const Point& p);
 
 // `group` is the communicator of a distributed point (MPI_COMM_SELF for the
 // others); every rank of it must call with the same point. Only the record

@@ -16,6 +16,7 @@
 
 #include "bounds.hpp"
 #include "config.hpp"
+#include "region_rate.hpp"
 #include "sweep.hpp"
 
 namespace toral {
@@ -330,24 +331,7 @@ CurveSummary summarize_curve(const double* S, std::size_t n) {
       out.saturation_time = static_cast<double>(t);
       break;
     }
-  if (T >= 1) {
-    const std::size_t t0 = std::min((3 * T + 3) / 4, T - 1);  // ceil(3T/4), at least two points
-    const double m = static_cast<double>(T - t0 + 1);
-    double tbar = 0, sbar = 0;
-    for (std::size_t t = t0; t <= T; ++t) {
-      tbar += static_cast<double>(t);
-      sbar += S[t];
-    }
-    tbar /= m;
-    sbar /= m;
-    double num = 0, den = 0;
-    for (std::size_t t = t0; t <= T; ++t) {
-      const double dt = static_cast<double>(t) - tbar;
-      num += dt * (S[t] - sbar);
-      den += dt * dt;
-    }
-    out.slope = num / den;
-  }
+  if (T >= 1) out.slope = late_slope(S, n);  // the window of the region rate (kernels/region_rate.hpp)
   return out;
 }
 
@@ -368,11 +352,13 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
   const std::size_t nn = E.stabilizer_dims.size();
   r.ent_cuts.assign(nr, -1);
   r.ent_lyapunov_rate.assign(nr, kNaN);
+  r.ent_region_rate.assign(nr, kNaN);
   if (E.gaussian) {
     r.gauss_entropy.assign(nr * nt, kNaN);
     r.gauss_radius.assign(nr * nt, kNaN);
     r.gauss_failures.assign(nr, -1);
-    for (auto* v : {&r.gauss_slope, &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time})
+    for (auto* v : {&r.gauss_slope, &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate,
+                    &r.gauss_saturation_value, &r.gauss_saturation_time})
       v->assign(nr, kNaN);
   }
   if (nn > 0) {
@@ -390,9 +376,9 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     r.status = static_cast<std::int32_t>(PointStatus::EntanglementFailed);
     r.message = "entanglement: " + what;
   };
-  // Cuts and the Lyapunov rate need only the lattice and the exponents: they
-  // are filled also where no curve can be computed (e.g. tangent exponents
-  // of a redrawn circuit).
+  // Cuts and Lambda_|A| (the asymptotic rate of a generic region) need only
+  // the lattice and the exponents: they are filled also where no curve can
+  // be computed (e.g. tangent exponents of a redrawn circuit).
   const std::int64_t L = p.L;
   std::vector<char> fits(nr, 0);
   for (std::size_t k = 0; k < nr; ++k) {
@@ -417,6 +403,22 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     return;
   }
 
+  // The rate each region reaches: the late slope of the exact log-volume of
+  // its rows of S^t, over the window of the curves' slopes (only that window
+  // is needed: ln vol is formed for t >= t0).
+  {
+    RegionRateOptions ro;
+    ro.from_t = E.periods >= 1 ? static_cast<std::int64_t>(late_window_start(nt)) : 0;
+    for (std::size_t k = 0; k < nr; ++k) {
+      if (!fits[k]) continue;
+      try {
+        r.ent_region_rate[k] = region_rate(circ, E.regions[k].sites, E.periods, ro).rate;
+      } catch (const std::exception& ex) {
+        note("region rate of region " + std::to_string(k) + ": " + ex.what());
+      }
+    }
+  }
+
   if (E.gaussian) {
     const std::vector<GaussianSite> init = gaussian_initial(E, L);
     for (std::size_t k = 0; k < nr; ++k) {
@@ -428,7 +430,8 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
         r.gauss_failures[k] = cv.failures;
         const CurveSummary s = summarize_curve(cv.entropy.data(), nt);
         r.gauss_slope[k] = s.slope;
-        r.gauss_slope_over_lyapunov[k] = s.slope / r.ent_lyapunov_rate[k];
+        r.gauss_slope_over_lyapunov[k] = rate_ratio(s.slope, r.ent_lyapunov_rate[k]);
+        r.gauss_slope_over_region_rate[k] = rate_ratio(s.slope, r.ent_region_rate[k]);
         r.gauss_saturation_value[k] = s.saturation_value;
         r.gauss_saturation_time[k] = s.saturation_time;
         if (cv.failures > 0) {
@@ -464,8 +467,8 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
           std::copy(S.begin(), S.end(), r.stab_entropy.begin() + static_cast<std::ptrdiff_t>(q * nt));
           const CurveSummary s = summarize_curve(S.data(), nt);
           r.stab_slope[q] = s.slope;
-          r.stab_slope_over_lyapunov[q] = s.slope / r.ent_lyapunov_rate[k];
-          r.stab_slope_over_lightcone[q] = s.slope / rate;
+          r.stab_slope_over_lyapunov[q] = rate_ratio(s.slope, r.ent_lyapunov_rate[k]);
+          r.stab_slope_over_lightcone[q] = rate_ratio(s.slope, rate);
           r.stab_saturation_value[q] = s.saturation_value;
           r.stab_saturation_time[q] = s.saturation_time;
           r.stab_violations[q] = bound_violations(S.data(), nt, cap, rate, kViolationTolerance);
@@ -519,43 +522,62 @@ EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
     return std::chrono::duration<double>(clk::now() - t0).count();
   };
   double work = 0;  // the kernels run one after another: the largest working set counts
+  // cost(T) ~ a T + b T^2 (the exact integers grow linearly in bits), fitted
+  // through the last two of probes at T = 16, 32, 64, ... that stop once a
+  // probe takes kProbeSeconds (short probes are mostly jitter, which the
+  // extrapolation multiplies by (T / t2)^2) or would pass T / 2. `probe(t)`
+  // computes the curve to t and returns its seconds; `bytes(t1, t2)` the
+  // working set extrapolated from the last probe.
+  constexpr double kProbeSeconds = 0.5;
+  auto quadratic = [&](auto&& probe, auto&& bytes) {
+    if (T <= 32) {
+      const double s = probe(T);  // the whole curve: measured, not extrapolated
+      if (T > 0) work = std::max(work, bytes(T - 1, T));
+      return s;
+    }
+    std::int64_t t1 = 16, t2 = 32;
+    double c1 = probe(t1), c2 = probe(t2);
+    while (c2 < kProbeSeconds && 2 * t2 <= T / 2) {
+      t1 = t2;
+      c1 = c2;
+      t2 *= 2;
+      c2 = probe(t2);
+    }
+    const double x1 = static_cast<double>(t1), x2 = static_cast<double>(t2), t = static_cast<double>(T);
+    double b = (c2 / x2 - c1 / x1) / (x2 - x1);
+    double a = c1 / x1 - b * x1;
+    if (b < 0) {  // jitter: no visible growth, linear through the longer probe
+      b = 0;
+      a = c2 / x2;
+    }
+    work = std::max(work, bytes(t1, t2));
+    return std::max(a, 0.0) * t + b * t * t;
+  };
   if (E.gaussian) {
-    // cost(T) ~ a T + b T^2 (the exact integers grow linearly in bits), fitted
-    // through the last two of probes at T = 16, 32, 64, ... that stop once a
-    // probe takes kProbeSeconds (short probes are mostly jitter, which the
-    // extrapolation multiplies by (T / t2)^2) or would pass T / 2.
-    constexpr double kProbeSeconds = 0.5;
     const std::vector<GaussianSite> init = gaussian_initial(E, L);
     for (const EntanglementRegion& reg : E.regions) {
       if (reg.sites.back() >= L) continue;
       EntropyCurve cv;
-      auto probe = [&](std::int64_t t) {
-        return seconds([&] { cv = gaussian_entropy_curve(circ, init, reg.sites, t, entropy_options(E)); });
-      };
-      if (T <= 32) {
-        est.gaussian_s += probe(T);  // the whole curve: measured, not extrapolated
-        if (T > 0) work = std::max(work, gaussian_work_bytes(cv, T - 1, T, T, reg.sites.size(), L, entropy_options(E)));
-        continue;
-      }
-      std::int64_t t1 = 16, t2 = 32;
-      double c1 = probe(t1), c2 = probe(t2);
-      while (c2 < kProbeSeconds && 2 * t2 <= T / 2) {
-        t1 = t2;
-        c1 = c2;
-        t2 *= 2;
-        c2 = probe(t2);
-      }
-      const double x1 = static_cast<double>(t1), x2 = static_cast<double>(t2), t = static_cast<double>(T);
-      double b = (c2 / x2 - c1 / x1) / (x2 - x1);
-      double a = c1 / x1 - b * x1;
-      if (b < 0) {  // jitter: no visible growth, linear through the longer probe
-        b = 0;
-        a = c2 / x2;
-      }
-      est.gaussian_s += std::max(a, 0.0) * t + b * t * t;
-      work = std::max(work, gaussian_work_bytes(cv, t1, t2, T, reg.sites.size(), L, entropy_options(E)));
+      est.gaussian_s += quadratic(
+          [&](std::int64_t t) {
+            return seconds([&] { cv = gaussian_entropy_curve(circ, init, reg.sites, t, entropy_options(E)); });
+          },
+          [&](std::int64_t t1, std::int64_t t2) {
+            return gaussian_work_bytes(cv, t1, t2, T, reg.sites.size(), L, entropy_options(E));
+          });
     }
     est.bytes += 2.0 * 8.0 * static_cast<double>(E.regions.size()) * static_cast<double>(T + 1);
+  }
+  // The region rate (always with the table): probed on whole curves, an
+  // overestimate (the run forms ln vol only on the last quarter).
+  for (const EntanglementRegion& reg : E.regions) {
+    if (reg.sites.back() >= L) continue;
+    RegionRate rr;
+    est.region_s += quadratic(
+        [&](std::int64_t t) { return seconds([&] { rr = region_rate(circ, reg.sites, t); }); },
+        [&](std::int64_t t1, std::int64_t t2) {
+          return rr.bits.empty() ? 0.0 : region_rate_work_bytes(rr, t1, t2, T, reg.sites.size(), L);
+        });
   }
   if (!E.stabilizer_dims.empty()) {
     const std::vector<StabilizerSite> init = stabilizer_initial(E, L);
@@ -609,12 +631,14 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
     m("/entanglement/wall_time", json_num(r.ent_wall_time));
     m("/entanglement/cuts", json_array(r.ent_cuts));
     m("/entanglement/lyapunov_rate", json_array(r.ent_lyapunov_rate));
+    m("/entanglement/region_rate", json_array(r.ent_region_rate));
     if (E.gaussian) {
       m("/entanglement/gaussian/entropy", json_array(r.gauss_entropy));
       m("/entanglement/gaussian/radius", json_array(r.gauss_radius));
       m("/entanglement/gaussian/failures", json_array(r.gauss_failures));
       m("/entanglement/gaussian/slope", json_array(r.gauss_slope));
       m("/entanglement/gaussian/slope_over_lyapunov", json_array(r.gauss_slope_over_lyapunov));
+      m("/entanglement/gaussian/slope_over_region_rate", json_array(r.gauss_slope_over_region_rate));
       m("/entanglement/gaussian/saturation_value", json_array(r.gauss_saturation_value));
       m("/entanglement/gaussian/saturation_time", json_array(r.gauss_saturation_time));
     }
@@ -639,11 +663,12 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
     return;
   }
   os << "  exact entanglement, t = 0.." << E.periods << " (" << num(r.ent_wall_time, 3) << " s; slope over the last"
-     << " quarter, sat. = first t at 99% of the max):\n";
+     << " quarter, sat. = first t at 99% of the max;\n  Lambda_|A| = asymptotic rate of a generic region, region = rate"
+     << " this region reaches, neither a bound):\n";
   if (E.gaussian) {
     os << "    gaussian " << std::setw(8) << "|A|" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_|A|"
-       << std::setw(12) << "slope" << std::setw(10) << "/Lambda" << std::setw(12) << "S(T)" << std::setw(8) << "sat.t"
-       << std::setw(12) << "max radius" << "\n";
+       << std::setw(12) << "region" << std::setw(12) << "slope" << std::setw(10) << "/Lambda" << std::setw(10)
+       << "/region" << std::setw(12) << "S(T)" << std::setw(8) << "sat.t" << std::setw(12) << "max radius" << "\n";
     for (std::size_t k = 0; k < nr; ++k) {
       const std::size_t nt = ax.times();
       double rad = kNaN;
@@ -652,11 +677,19 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
         if (!std::isnan(x)) rad = std::isnan(rad) ? x : std::max(rad, x);
       }
       os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.gauss_slope, k))
-         << std::setw(10) << num(at(r.gauss_slope_over_lyapunov, k), 4) << std::setw(12)
+         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.ent_region_rate, k))
+         << std::setw(12) << num(at(r.gauss_slope, k)) << std::setw(10) << num(at(r.gauss_slope_over_lyapunov, k), 4)
+         << std::setw(10) << num(at(r.gauss_slope_over_region_rate, k), 4) << std::setw(12)
          << num(at(r.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << num(at(r.gauss_saturation_time, k))
          << std::setw(12) << num(rad, 2) << "\n";
     }
+  } else {
+    os << "    regions  " << std::setw(8) << "|A|" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_|A|"
+       << std::setw(12) << "region" << "\n";
+    for (std::size_t k = 0; k < nr; ++k)
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
+         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.ent_region_rate, k))
+         << "\n";
   }
   for (std::size_t j = 0; j < E.stabilizer_dims.size(); ++j) {
     os << "    N = " << std::setw(3) << E.stabilizer_dims[j] << std::setw(7) << "|A|" << std::setw(6) << "cuts"

@@ -67,7 +67,8 @@ EntanglementAxes entanglement_axes(const Config& c);
 // target, turns an ok status into EntanglementFailed with a message; the
 // other curves are still computed. Uses r.exponents (for Lambda_|A|), so it
 // runs after the spectrum. Points whose gates are redrawn every period get
-// NaN curves (the kernels take one time-periodic circuit).
+// NaN curves and region rates (the kernels take one time-periodic circuit).
+// Every ratio over a rate follows rate_ratio (kernels/bounds.hpp).
 void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
 
 // The Gaussian kernel's options from the config (radius, precision limit).
@@ -80,11 +81,12 @@ EntropyOptions entropy_options(const EntanglementSpec& E);
 // short T and extrapolating. A Gaussian curve's per-period cost grows about
 // linearly with t (its exact integers do), so T periods cost ~ a T + b T^2,
 // fitted through the last two probes of T = 16, 32, 64, ... (they stop once
-// one takes half a second or would pass T / 2); stabilizer curves and
+// one takes half a second or would pass T / 2), and so does the region rate
+// (region_rate_work_bytes for its memory); stabilizer curves and
 // profiles cost the same every period, so ~ T from a 24-period probe. Runs of
 // T <= the probe lengths are timed as they are. All zero without the table.
 struct EntanglementEstimate {
-  double gaussian_s = 0, stabilizer_s = 0, bytes = 0;
+  double gaussian_s = 0, stabilizer_s = 0, region_s = 0, bytes = 0;
 };
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p);
 

@@ -129,7 +129,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
     std::vector<double> ells(c.bounds.regions.begin(), c.bounds.regions.end()),
         Ns(c.bounds.local_dims.begin(), c.bounds.local_dims.end());
     os << ",\n  \"/bounds/region_size\": " << json_array(ells) << ",\n  \"/bounds/local_dim\": " << json_array(Ns)
-       << ",\n  \"/bounds/cuts\": " << r.cuts << ",\n  \"/bounds/lyapunov_rate\": " << json_array(r.lyapunov_rate)
+       << ",\n  \"/bounds/cuts\": " << json_array(r.cuts) << ",\n  \"/bounds/lyapunov_rate\": " << json_array(r.lyapunov_rate)
        << ",\n  \"/bounds/hilbert_cap\": " << json_array(r.hilbert_cap)
        << ",\n  \"/bounds/lightcone_rate\": " << json_array(r.lightcone_rate)
        << ",\n  \"/bounds/ehrenfest_time\": " << json_array(r.ehrenfest_time)
@@ -165,19 +165,22 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   if (!std::isnan(r.limit_lambda_max))
     os << "  bulk limit L->inf   lambda_max " << num(r.limit_lambda_max, 12) << ", KS density "
        << num(r.limit_ks_density, 12) << " (+- " << num(r.limit_accuracy, 2) << ")\n";
-  os << "  bounds (region of ell sites, " << r.cuts << " cut" << (r.cuts == 1 ? "" : "s") << "):\n";
-  os << "    " << std::setw(6) << "ell" << std::setw(14) << "Lyap. rate";
-  for (std::size_t j = 0; j < nn; ++j) os << std::setw(14) << ("cap N=" + std::to_string(c.bounds.local_dims[j]));
+  os << "  blocks of ell sites (cap and light-cone rate are bounds; Lambda_ell is the asymptotic rate of a\n"
+     << "  generic region, not a bound):\n";
+  os << "    " << std::setw(6) << "ell" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_ell";
+  for (std::size_t j = 0; j < nn; ++j) os << std::setw(11) << ("cap N=" + std::to_string(c.bounds.local_dims[j]));
+  for (std::size_t j = 0; j < nn; ++j) os << std::setw(11) << ("l.c. N=" + std::to_string(c.bounds.local_dims[j]));
   os << "\n";
   for (std::size_t i = 0; i < nl; ++i) {
-    os << "    " << std::setw(6) << c.bounds.regions[i] << std::setw(14) << num(r.lyapunov_rate[i], 6);
-    for (std::size_t j = 0; j < nn; ++j) os << std::setw(14) << num(r.hilbert_cap[i * nn + j], 6);
+    os << "    " << std::setw(6) << c.bounds.regions[i] << std::setw(6) << (i < r.cuts.size() ? r.cuts[i] : -1)
+       << std::setw(12) << num(r.lyapunov_rate[i], 6);
+    for (std::size_t j = 0; j < nn; ++j) os << std::setw(11) << num(r.hilbert_cap[i * nn + j], 5);
+    for (std::size_t j = 0; j < nn; ++j) os << std::setw(11) << num(r.lightcone_rate[i * nn + j], 5);
     os << "\n";
   }
-  os << "    " << std::setw(6) << "N" << std::setw(14) << "light-cone" << std::setw(14) << "Ehrenfest t" << "\n";
+  os << "    " << std::setw(6) << "N" << std::setw(14) << "Ehrenfest t" << "\n";
   for (std::size_t j = 0; j < nn; ++j)
-    os << "    " << std::setw(6) << c.bounds.local_dims[j] << std::setw(14) << num(r.lightcone_rate[j], 6)
-       << std::setw(14) << num(r.ehrenfest_time[j], 6) << "\n";
+    os << "    " << std::setw(6) << c.bounds.local_dims[j] << std::setw(14) << num(r.ehrenfest_time[j], 6) << "\n";
   print_entanglement(os, c, r, false);  // driver/entangle.cpp
 }
 
@@ -254,7 +257,7 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     if (++k.count > 1) continue;  // every point of a class costs about the same: cost its first
     if (c.entanglement.enabled) {
       const EntanglementEstimate e = estimate_entanglement(c, p);
-      k.ent_seconds = e.gaussian_s + e.stabilizer_s;
+      k.ent_seconds = e.gaussian_s + e.stabilizer_s + e.region_s;
       k.ent_bytes = e.bytes;
     }
     const double ent_bytes = k.ent_bytes;

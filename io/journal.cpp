@@ -23,7 +23,7 @@ namespace {
 // io/result_file.cpp taught to write and read it); this assertion fires on
 // the reference platform when PointRecord changes size, as a reminder.
 #if defined(__GLIBCXX__) && defined(__x86_64__) && defined(__linux__)
-static_assert(sizeof(PointRecord) == 1016,
+static_assert(sizeof(PointRecord) == 1080,
               "PointRecord changed: update visit() in io/journal.cpp (and bump kJournalVersion), "
               "io/result_file.cpp (writer and read_results) and docs/layout.md, then this size");
 #endif
@@ -160,7 +160,7 @@ void visit(A& a, R& r) {
   a(r.limit_accuracy);
   a(r.limit_hist_counts);
   a(r.limit_hist_edges);
-  // /bounds
+  // /bounds (format version 3: cuts per ell, lightcone_rate per ell and N)
   a(r.cuts);
   a(r.lyapunov_rate);
   a(r.hilbert_cap);
@@ -172,11 +172,13 @@ void visit(A& a, R& r) {
   a(r.ent_wall_time);
   a(r.ent_cuts);
   a(r.ent_lyapunov_rate);
+  a(r.ent_region_rate);  // format version 3
   a(r.gauss_entropy);
   a(r.gauss_radius);
   a(r.gauss_failures);
   a(r.gauss_slope);
   a(r.gauss_slope_over_lyapunov);
+  a(r.gauss_slope_over_region_rate);  // format version 3
   a(r.gauss_saturation_value);
   a(r.gauss_saturation_time);
   a(r.stab_entropy);

@@ -26,7 +26,9 @@ namespace toral {
 
 // Format version written in the header; read_journal refuses others.
 // 2: the /entanglement fields of PointRecord were added.
-// 3: /chaos/zero_count and /chaos/zero_certified.
+// 3: /chaos/zero_count and /chaos/zero_certified; /bounds cuts per ell and
+//    lightcone_rate per ell and N; the region rate (ent_region_rate,
+//    gauss_slope_over_region_rate).
 constexpr std::uint32_t kJournalVersion = 3;
 
 // `result_path + ".journal"`.

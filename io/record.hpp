@@ -114,13 +114,13 @@ struct PointRecord {
   std::vector<double> limit_hist_counts, limit_hist_edges;
 
   // /bounds, row-major over (ell, N) where two axes apply
-  std::int64_t cuts = -1;
-  std::vector<double> lyapunov_rate;        // [ell]
-  std::vector<double> hilbert_cap;          // [ell][N]
-  std::vector<double> lightcone_rate;       // [N]
+  std::vector<std::int64_t> cuts;           // [ell] cuts c of the ell-site block (-1: no such block)
+  std::vector<double> lyapunov_rate;        // [ell] Lambda_ell: asymptotic growth rate of a generic region (not a bound)
+  std::vector<double> hilbert_cap;          // [ell][N] min(ell, L - ell) ln N (a bound)
+  std::vector<double> lightcone_rate;       // [ell][N] 2 c_ell ln N (a bound on the growth rate)
   std::vector<double> ehrenfest_time;       // [N]
-  std::vector<double> saturation_lyapunov;  // [ell][N]
-  std::vector<double> saturation_lightcone; // [ell][N]
+  std::vector<double> saturation_lyapunov;  // [ell][N] cap / Lambda_ell: a generic region's time (not a bound)
+  std::vector<double> saturation_lightcone; // [ell][N] cap / lightcone_rate
 
   // /entanglement: exact entanglement dynamics (docs/entanglement.md). Every
   // vector is empty when not computed, else of the full length, row-major
@@ -128,12 +128,16 @@ struct PointRecord {
   // its regions and t = 0..T; NaN (int64: -1) where a region does not fit.
   double ent_wall_time = kNaN;                   // seconds in the entanglement kernels
   std::vector<std::int64_t> ent_cuts;            // [region] boundary cuts c of A at this point
-  std::vector<double> ent_lyapunov_rate;         // [region] Lambda_|A| (sum of the 2 min(|A|, L-|A|) top exponents)
+  std::vector<double> ent_lyapunov_rate;         // [region] Lambda_|A| (sum of the 2 min(|A|, L-|A|) top exponents):
+                                                 //   the asymptotic rate of a generic region, not a bound
+  std::vector<double> ent_region_rate;           // [region] late rate of ln vol(P_A S^t) (kernels/region_rate.hpp):
+                                                 //   the rate this region's Gaussian entropy reaches
   std::vector<double> gauss_entropy;             // [region][t] midpoint of S_A(t), nats
   std::vector<double> gauss_radius;              // [region][t] certified radius
   std::vector<std::int64_t> gauss_failures;      // [region] t's whose radius missed the target
   std::vector<double> gauss_slope;               // [region] late-time least-squares slope
-  std::vector<double> gauss_slope_over_lyapunov; // [region]
+  std::vector<double> gauss_slope_over_lyapunov; // [region] rate_ratio(slope, Lambda_|A|)
+  std::vector<double> gauss_slope_over_region_rate;  // [region] rate_ratio(slope, region rate)
   std::vector<double> gauss_saturation_value;    // [region] max_t S_A(t)
   std::vector<double> gauss_saturation_time;     // [region] first t with S_A(t) >= 0.99 max
   std::vector<double> stab_entropy;              // [N][region][t]

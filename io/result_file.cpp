@@ -179,10 +179,12 @@ std::string validate_entanglement(const PointRecord& r, const EntanglementAxes& 
   };
   for (const std::string& m :
        {len(r.ent_cuts, nr, "ent_cuts"), len(r.ent_lyapunov_rate, nr, "ent_lyapunov_rate"),
+        len(r.ent_region_rate, nr, "ent_region_rate"),
         len(r.gauss_entropy, ng * nr * nt, "gauss_entropy"),
         len(r.gauss_radius, ng * nr * nt, "gauss_radius"),
         len(r.gauss_failures, ng * nr, "gauss_failures"), len(r.gauss_slope, ng * nr, "gauss_slope"),
         len(r.gauss_slope_over_lyapunov, ng * nr, "gauss_slope_over_lyapunov"),
+        len(r.gauss_slope_over_region_rate, ng * nr, "gauss_slope_over_region_rate"),
         len(r.gauss_saturation_value, ng * nr, "gauss_saturation_value"),
         len(r.gauss_saturation_time, ng * nr, "gauss_saturation_time"),
         len(r.stab_entropy, nn * nr * nt, "stab_entropy"), len(r.stab_slope, nn * nr, "stab_slope"),
@@ -246,11 +248,14 @@ std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes&
           len(r.limit_hist_counts, bins, "limit_hist_counts"),
           len(r.limit_hist_edges, edges, "limit_hist_edges"),
           len(r.lyapunov_rate, nl, "lyapunov_rate"), len(r.hilbert_cap, nl * nn, "hilbert_cap"),
-          len(r.lightcone_rate, nn, "lightcone_rate"),
+          len(r.lightcone_rate, nl * nn, "lightcone_rate"),
           len(r.ehrenfest_time, nn, "ehrenfest_time"),
           len(r.saturation_lyapunov, nl * nn, "saturation_lyapunov"),
           len(r.saturation_lightcone, nl * nn, "saturation_lightcone")})
       if (!e.empty()) return e;
+    if (!r.cuts.empty() && r.cuts.size() != nl)
+      return at + ": cuts has " + std::to_string(r.cuts.size()) + " values, expected " + std::to_string(nl) +
+             " (or none)";
     const std::string e = validate_entanglement(r, ax.entanglement, at);
     if (!e.empty()) return e;
   }
@@ -473,7 +478,8 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
                "initial state (docs/entanglement.md); NaN (int64: -1) where a region does not fit "
                "the point's lattice or nothing was computed");
   h5::set_attr(g, "slope_window",
-               "least-squares slope of S_A(t) over t = t0..T, t0 = min(ceil(3T/4), T-1); NaN for T = 0");
+               "least-squares slope of S_A(t), and of ln vol(P_A S^t) for region_rate, over t = t0..T, "
+               "t0 = min(ceil(3T/4), T-1); NaN for T = 0");
   h5::set_attr(g, "saturation_fraction", 0.99);
   h5::set_attr(g, "violation_tolerance", 1e-9);
   {
@@ -494,8 +500,17 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
   put_f64(c, "lyapunov_rate", {hr},
           rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_lyapunov_rate; }),
           "nats/period",
-          "Lambda_|A|: sum of the 2 min(|A|, L-|A|) largest exponents of the point (as "
-          "/bounds/lyapunov_rate); NaN where fewer are known");
+          "Lambda_|A|, the asymptotic entropy growth rate of a generic region of |A| sites: sum of the "
+          "2 min(|A|, L-|A|) largest exponents of the point (as /bounds/lyapunov_rate); not a bound, and "
+          "not the rate of every region (region_rate); NaN where fewer are known and for |A| = L");
+  put_f64(c, "region_rate", {hr},
+          rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_region_rate; }),
+          "nats/period",
+          "the growth rate this region's Gaussian entropy reaches: late-time least-squares slope (window "
+          "slope_window) of ln vol(P_A S^t), the exact log-volume of the 2 min(|A|, L-|A|)-site rows of "
+          "S^t (kernels/region_rate.hpp); equals lyapunov_rate for a generic region, less for a region "
+          "in a special position; a rate, not a bound; NaN for |A| = L and for circuits redrawn every "
+          "period");
   if (e.gaussian) {
     h5::Group gg = h5::create_group(g, "gaussian");
     Ctx cg = c;
@@ -518,7 +533,13 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
             "nats/period", "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
     put_f64(cg, "slope_over_lyapunov", {hr},
             rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope_over_lyapunov; }),
-            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate); about 1 for chaotic circuits");
+            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate) by the rule for ratios over rates "
+                 "(x/0 = +-inf for x != 0, 0/0 = NaN); tends to 1 for a generic region of a chaotic "
+                 "circuit, below 1 for a region in a special position");
+    put_f64(cg, "slope_over_region_rate", {hr},
+            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope_over_region_rate; }),
+            "1", "slope / region_rate (/entanglement/region_rate), same window, by the rule for ratios over "
+                 "rates; tends to 1 for every region (S_A(t) - ln vol(P_A S^t) stays bounded)");
     put_f64(cg, "saturation_value", {hr},
             rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_saturation_value; }),
             "nats", "max over t of S_A(t)");
@@ -544,10 +565,10 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
             "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
     put_f64(cs, "slope_over_lyapunov", {hn, hr},
             rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lyapunov; }),
-            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate)");
+            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate), by the rule for ratios over rates");
     put_f64(cs, "slope_over_lightcone", {hn, hr},
             rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lightcone; }),
-            "1", "slope / lightcone_rate");
+            "1", "slope / lightcone_rate (at most 1: the light cone is a bound)");
     put_f64(cs, "saturation_value", {hn, hr},
             rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_saturation_value; }),
             "nats", "max over t of S_A(t)");
@@ -556,10 +577,11 @@ void write_entanglement(const h5::Group& root, Ctx c, bool writer, const Entangl
             "periods", "first t with S_A(t) >= 0.99 saturation_value");
     put_f64(cs, "cap", {hn, hr},
             rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_cap; }), "nats",
-            "Hilbert-space cap min(|A|, L-|A|) ln N");
+            "Hilbert-space cap min(|A|, L-|A|) ln N: a bound on S_A (theorem)");
     put_f64(cs, "lightcone_rate", {hn, hr},
             rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_lightcone_rate; }),
-            "nats/period", "light-cone rate 2 c ln N of the region's c cuts");
+            "nats/period", "light-cone rate 2 c ln N of the region's c cuts: a bound on the growth of S_A "
+                           "per period (theorem)");
     put_i64_rows(cs, "violations", {hn, hr},
                  irows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_violations; }),
                  "1", "number of t with S_A(t) > cap + 1e-9 or S_A(t) - S_A(0) > lightcone_rate t + 1e-9; "
@@ -862,38 +884,47 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
       h5::Group g = h5::create_group(root, "bounds");
       c.parent = &g;
       h5::set_attr(g, "meaning",
-                   "entanglement-growth bounds per point over region sizes ell (region_size) and "
-                   "local dimensions N (local_dim)");
+                   "entanglement growth of ell-site blocks per point over region sizes ell (region_size) "
+                   "and local dimensions N (local_dim): two theorems (hilbert_cap, lightcone_rate) and "
+                   "the asymptotic rate of a generic region (lyapunov_rate, not a bound; docs/bounds.md)");
       put_coord(g, rank == 0, "region_size", ax.region_sizes, "sites",
-                "region size ell: axis 1 of lyapunov_rate, hilbert_cap and saturation_*");
+                "region size ell: axis 1 of cuts, lyapunov_rate, hilbert_cap, lightcone_rate and saturation_*");
       put_coord(g, rank == 0, "local_dim", ax.local_dims, "1",
                 "local Hilbert-space dimension N: last axis of hilbert_cap, lightcone_rate, "
                 "ehrenfest_time and saturation_*");
-      put_i64(c, "cuts", icolumn(recs, [](const PointRecord& r) { return r.cuts; }), "1",
-              "boundary cuts of the region, each crossed by one gate per period; -1 when not "
-              "computed");
+      put_i64_rows(c, "cuts", {hl},
+                   irows_of(recs, nl, [](const PointRecord& r) -> const auto& { return r.cuts; }), "1",
+                   "boundary cuts c of the ell-site block (bonds with one end inside it), each crossed by "
+                   "one gate per period: 2 inside a ring or (placement bulk) strictly inside an open chain, "
+                   "1 at an end of an open chain, 0 for ell = L; -1 where no such block exists or not "
+                   "computed, [ell]");
       put_f64(c, "lyapunov_rate", {hl},
               rows_of(recs, nl, [](const PointRecord& r) -> const auto& { return r.lyapunov_rate; }),
               "nats/period",
-              "entropy growth rate bound of an ell-site region: sum of the 2 min(ell, L-ell) "
-              "largest exponents; NaN where not applicable");
+              "Lambda_ell, the asymptotic entropy growth rate of a generic ell-site region (Bianchi, "
+              "Hackl & Yokomizo 2018): sum of the 2 min(ell, L-ell) largest exponents; not a bound, and a "
+              "particular region may reach less (/entanglement/region_rate); NaN where not applicable");
       put_f64(c, "hilbert_cap", {hl, hn},
               rows_of(recs, nl * nn, [](const PointRecord& r) -> const auto& { return r.hilbert_cap; }),
-              "nats", "maximal entropy of an ell-site region of N-level sites, [ell][N]");
-      put_f64(c, "lightcone_rate", {hn},
-              rows_of(recs, nn, [](const PointRecord& r) -> const auto& { return r.lightcone_rate; }),
-              "nats/period", "light-cone bound on the entropy growth rate, [N]");
+              "nats", "maximal entropy of an ell-site region of N-level sites, min(ell, L-ell) ln N "
+                      "(theorem), [ell][N]");
+      put_f64(c, "lightcone_rate", {hl, hn},
+              rows_of(recs, nl * nn, [](const PointRecord& r) -> const auto& { return r.lightcone_rate; }),
+              "nats/period", "light-cone bound 2 c ln N on the entropy growth per period of the ell-site "
+                             "block with c = cuts[ell] (theorem), [ell][N]");
       put_f64(c, "ehrenfest_time", {hn},
               rows_of(recs, nn, [](const PointRecord& r) -> const auto& { return r.ehrenfest_time; }),
-              "periods", "Ehrenfest time, [N]");
+              "periods", "Ehrenfest time ln N / lambda_max (+inf for lambda_max = 0), [N]");
       put_f64(c, "saturation_lyapunov", {hl, hn},
               rows_of(recs, nl * nn,
                       [](const PointRecord& r) -> const auto& { return r.saturation_lyapunov; }),
-              "periods", "time to reach hilbert_cap at lyapunov_rate, [ell][N]");
+              "periods", "hilbert_cap / lyapunov_rate: the time a generic region growing at its asymptotic "
+                         "rate would need to reach the cap (not a bound; +inf for a zero rate), [ell][N]");
       put_f64(c, "saturation_lightcone", {hl, hn},
               rows_of(recs, nl * nn,
                       [](const PointRecord& r) -> const auto& { return r.saturation_lightcone; }),
-              "periods", "time to reach hilbert_cap at lightcone_rate, [ell][N]");
+              "periods", "hilbert_cap / lightcone_rate: no finite-N entropy of the block reaches the cap "
+                         "earlier (theorem), [ell][N]");
       g.close();
     }
 
@@ -1417,10 +1448,19 @@ ResultData read_file(const Reader& rd) {
     ax.region_sizes = rd.i64("/bounds/region_size", {L});
     ax.local_dims = rd.i64("/bounds/local_dim", {N});
     const std::size_t l = static_cast<std::size_t>(L), m = static_cast<std::size_t>(N);
-    each_i64(rd.i64("/bounds/cuts", {hP}), &PointRecord::cuts);
+    {  // int64 rows [ell]: all -1 (not computed) comes back empty
+      const std::vector<std::int64_t> v = rd.i64("/bounds/cuts", {hP, L});
+      for (std::size_t i = 0; i < n; ++i) {
+        const auto b = v.begin() + static_cast<std::ptrdiff_t>(i * l), en = b + static_cast<std::ptrdiff_t>(l);
+        if (std::all_of(b, en, [](std::int64_t x) { return x == -1; }))
+          recs[i].cuts = {};
+        else
+          recs[i].cuts = {b, en};
+      }
+    }
     each_row(rd.f64("/bounds/lyapunov_rate", {hP, L}), l, &PointRecord::lyapunov_rate);
     each_row(rd.f64("/bounds/hilbert_cap", {hP, L, N}), l * m, &PointRecord::hilbert_cap);
-    each_row(rd.f64("/bounds/lightcone_rate", {hP, N}), m, &PointRecord::lightcone_rate);
+    each_row(rd.f64("/bounds/lightcone_rate", {hP, L, N}), l * m, &PointRecord::lightcone_rate);
     each_row(rd.f64("/bounds/ehrenfest_time", {hP, N}), m, &PointRecord::ehrenfest_time);
     each_row(rd.f64("/bounds/saturation_lyapunov", {hP, L, N}), l * m,
              &PointRecord::saturation_lyapunov);
@@ -1459,6 +1499,7 @@ ResultData read_file(const Reader& rd) {
     each_f64(rd.f64("/entanglement/wall_time", {hP}), &PointRecord::ent_wall_time);
     each_irow(rd.i64("/entanglement/cuts", {hP, nr}), r_, &PointRecord::ent_cuts);
     each_row(rd.f64("/entanglement/lyapunov_rate", {hP, nr}), r_, &PointRecord::ent_lyapunov_rate);
+    each_row(rd.f64("/entanglement/region_rate", {hP, nr}), r_, &PointRecord::ent_region_rate);
     e.gaussian = rd.has("/entanglement/gaussian");
     if (e.gaussian) {
       rd.group("/entanglement/gaussian");
@@ -1468,6 +1509,7 @@ ResultData read_file(const Reader& rd) {
       each_irow(rd.i64(b + "failures", {hP, nr}), r_, &PointRecord::gauss_failures);
       each_row(rd.f64(b + "slope", {hP, nr}), r_, &PointRecord::gauss_slope);
       each_row(rd.f64(b + "slope_over_lyapunov", {hP, nr}), r_, &PointRecord::gauss_slope_over_lyapunov);
+      each_row(rd.f64(b + "slope_over_region_rate", {hP, nr}), r_, &PointRecord::gauss_slope_over_region_rate);
       each_row(rd.f64(b + "saturation_value", {hP, nr}), r_, &PointRecord::gauss_saturation_value);
       each_row(rd.f64(b + "saturation_time", {hP, nr}), r_, &PointRecord::gauss_saturation_time);
     }

@@ -22,7 +22,8 @@ namespace toral {
 
 // Layout version written as the root attribute `layout_version`. Bumped on
 // every incompatible change of docs/layout.md.
-constexpr std::int64_t kLayoutVersion = 1;
+// 2: /bounds/cuts per region size (P, nl), /bounds/lightcone_rate (P, nl, nN).
+constexpr std::int64_t kLayoutVersion = 2;
 
 // Fixed byte size of each /points/message entry (longer messages are
 // truncated on a UTF-8 boundary to kMessageBytes - 1 bytes).
@@ -90,9 +91,9 @@ struct ResultData {
   EnsembleStats stats;                // groups() == 0 when the file has no /stats
 };
 
-// Serial (no MPI needed; plain sec2 file access). Reads a layout-1 result
+// Serial (no MPI needed; plain sec2 file access). Reads a layout-2 result
 // file back. Validates that it is a toral file (root attributes
-// toral_version, layout_version == 1, every layout-1 dataset present with
+// toral_version, layout_version == 2, every layout-2 dataset present with
 // consistent shapes; /entanglement is optional) and throws ResultFileError with a one-line message
 // naming the file otherwise ("not a toral result file", "unsupported layout
 // version", "missing dataset /x/y", "corrupt: ..."). HDF5's automatic error

@@ -68,11 +68,13 @@ inline void expect_identical_records(const toral::PointRecord& a, const toral::P
   d(a.ent_wall_time, b.ent_wall_time, "ent_wall_time");
   EXPECT_EQ(a.ent_cuts, b.ent_cuts);
   v(a.ent_lyapunov_rate, b.ent_lyapunov_rate, "ent_lyapunov_rate");
+  v(a.ent_region_rate, b.ent_region_rate, "ent_region_rate");
   v(a.gauss_entropy, b.gauss_entropy, "gauss_entropy");
   v(a.gauss_radius, b.gauss_radius, "gauss_radius");
   EXPECT_EQ(a.gauss_failures, b.gauss_failures);
   v(a.gauss_slope, b.gauss_slope, "gauss_slope");
   v(a.gauss_slope_over_lyapunov, b.gauss_slope_over_lyapunov, "gauss_slope_over_lyapunov");
+  v(a.gauss_slope_over_region_rate, b.gauss_slope_over_region_rate, "gauss_slope_over_region_rate");
   v(a.gauss_saturation_value, b.gauss_saturation_value, "gauss_saturation_value");
   v(a.gauss_saturation_time, b.gauss_saturation_time, "gauss_saturation_time");
   v(a.stab_entropy, b.stab_entropy, "stab_entropy");

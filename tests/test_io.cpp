@@ -93,11 +93,11 @@ PointRecord without_entanglement(PointRecord r) {
   const PointRecord d;
   r.ent_wall_time = d.ent_wall_time;
   for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations}) v->clear();
-  for (auto* v : {&r.ent_lyapunov_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
-                  &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time,
-                  &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
-                  &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate,
-                  &r.stab_profile})
+  for (auto* v : {&r.ent_lyapunov_rate, &r.ent_region_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
+                  &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate, &r.gauss_saturation_value,
+                  &r.gauss_saturation_time, &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov,
+                  &r.stab_slope_over_lightcone, &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap,
+                  &r.stab_lightcone_rate, &r.stab_profile})
     v->clear();
   return r;
 }
@@ -172,18 +172,20 @@ PointRecord make_record(std::int64_t i) {
     for (int b = 0; b <= kBins; ++b) r.limit_hist_edges.push_back(-1.0 + 0.5 * b);
   }
   if (i != kNoBounds) {
-    r.cuts = 2;
-    for (std::size_t l = 0; l < kEll.size(); ++l) r.lyapunov_rate.push_back(x + 0.01 * kEll[l]);
-    for (std::size_t n2 = 0; n2 < kN.size(); ++n2) {
-      r.lightcone_rate.push_back(2.0 * std::log(static_cast<double>(kN[n2])) + x);
-      r.ehrenfest_time.push_back(std::log(static_cast<double>(kN[n2])) / r.lambda_max);
+    for (std::size_t l = 0; l < kEll.size(); ++l) {
+      r.cuts.push_back(l + 1 == kEll.size() ? 1 : 2);  // per ell: the last block touches an end
+      r.lyapunov_rate.push_back(x + 0.01 * kEll[l]);
     }
+    for (std::size_t n2 = 0; n2 < kN.size(); ++n2)
+      r.ehrenfest_time.push_back(std::log(static_cast<double>(kN[n2])) / r.lambda_max);
     for (std::size_t l = 0; l < kEll.size(); ++l)
       for (std::size_t n2 = 0; n2 < kN.size(); ++n2) {
         const double cap = kEll[l] * std::log(static_cast<double>(kN[n2]));
+        const double light = 2.0 * static_cast<double>(r.cuts[l]) * std::log(static_cast<double>(kN[n2])) + x;
         r.hilbert_cap.push_back(cap);
+        r.lightcone_rate.push_back(light);
         r.saturation_lyapunov.push_back(cap / r.lyapunov_rate[l] + 1000.0 * l + 100.0 * n2);
-        r.saturation_lightcone.push_back(cap / r.lightcone_rate[n2] + 10.0 * l + n2);
+        r.saturation_lightcone.push_back(cap / light + 10.0 * l + n2);
       }
   }
   if (i != kNoEnt) {  // kNoEnt: gates redrawn in time, nothing computed
@@ -196,6 +198,7 @@ PointRecord make_record(std::int64_t i) {
       const double kk = static_cast<double>(k);
       r.ent_cuts.push_back(fits ? static_cast<std::int64_t>(2 + k) : -1);
       r.ent_lyapunov_rate.push_back(fits ? x + 0.5 * kk : kNaN);
+      r.ent_region_rate.push_back(fits ? x + 0.25 * kk : kNaN);
       for (std::size_t t = 0; t < nt; ++t) {
         r.gauss_entropy.push_back(fits ? 0.1 * static_cast<double>(t) * (kk + 1) + x : kNaN);
         r.gauss_radius.push_back(fits ? 1e-13 * static_cast<double>(t + 1) : kNaN);
@@ -203,6 +206,7 @@ PointRecord make_record(std::int64_t i) {
       r.gauss_failures.push_back(fits ? (i == 4 && k == 0 ? 1 : 0) : -1);
       r.gauss_slope.push_back(fits ? 0.1 * (kk + 1) : kNaN);
       r.gauss_slope_over_lyapunov.push_back(fits ? 0.1 * (kk + 1) / (x + 0.5 * kk) : kNaN);
+      r.gauss_slope_over_region_rate.push_back(fits ? 0.1 * (kk + 1) / (x + 0.25 * kk) : kNaN);
       r.gauss_saturation_value.push_back(fits ? 0.3 * (kk + 1) + x : kNaN);
       r.gauss_saturation_time.push_back(fits ? 3.0 : kNaN);
     }
@@ -427,7 +431,7 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
 
   // root attributes
   EXPECT_EQ(attr_string(f, "/", "toral_version"), meta.toral_version);
-  EXPECT_EQ(attr_int(f, "/", "layout_version"), 1);
+  EXPECT_EQ(attr_int(f, "/", "layout_version"), 2);
   EXPECT_EQ(attr_string(f, "/", "config"), meta.config_text);
   EXPECT_EQ(attr_string(f, "/", "config_source"), meta.config_source);
   EXPECT_EQ(attr_string(f, "/", "created"), meta.created);
@@ -547,10 +551,14 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   EXPECT_EQ(read_raw<std::int64_t>(f, "/bounds/local_dim", H5T_NATIVE_INT64), ax.local_dims);
   EXPECT_TRUE(type_is(f, "/bounds/region_size", H5T_STD_I64LE));
   EXPECT_TRUE(type_is(f, "/bounds/local_dim", H5T_STD_I64LE));
-  expect_i64(f, "/bounds/cuts", [](const PointRecord& r) { return r.cuts; }, recs);
+  expect_i64_rows(f, "/bounds/cuts", {hP, nl}, [nl](const PointRecord& r) {
+    std::vector<std::int64_t> o(nl, -1);
+    std::copy_n(r.cuts.begin(), std::min(nl, r.cuts.size()), o.begin());
+    return o;
+  }, recs);
   expect_f64(f, "/bounds/lyapunov_rate", {hP, nl}, [nl](const PointRecord& r) { return pad(r.lyapunov_rate, nl); }, recs);
   expect_f64(f, "/bounds/hilbert_cap", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.hilbert_cap, nl * nn); }, recs);
-  expect_f64(f, "/bounds/lightcone_rate", {hP, nn}, [nn](const PointRecord& r) { return pad(r.lightcone_rate, nn); }, recs);
+  expect_f64(f, "/bounds/lightcone_rate", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.lightcone_rate, nl * nn); }, recs);
   expect_f64(f, "/bounds/ehrenfest_time", {hP, nn}, [nn](const PointRecord& r) { return pad(r.ehrenfest_time, nn); }, recs);
   expect_f64(f, "/bounds/saturation_lyapunov", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lyapunov, nl * nn); }, recs);
   expect_f64(f, "/bounds/saturation_lightcone", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lightcone, nl * nn); }, recs);
@@ -583,12 +591,14 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
     };
     expect_i64_rows(f, "/entanglement/cuts", {hP, hr}, [&](const PointRecord& r) { return ipad(r.ent_cuts, r_); }, recs);
     expect_f64(f, "/entanglement/lyapunov_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.ent_lyapunov_rate, r_); }, recs);
+    expect_f64(f, "/entanglement/region_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.ent_region_rate, r_); }, recs);
     const std::string g = "/entanglement/gaussian/";
     expect_f64(f, g + "entropy", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_entropy, r_ * t_); }, recs);
     expect_f64(f, g + "radius", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_radius, r_ * t_); }, recs);
     expect_i64_rows(f, g + "failures", {hP, hr}, [&](const PointRecord& r) { return ipad(r.gauss_failures, r_); }, recs);
     expect_f64(f, g + "slope", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope, r_); }, recs);
     expect_f64(f, g + "slope_over_lyapunov", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope_over_lyapunov, r_); }, recs);
+    expect_f64(f, g + "slope_over_region_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope_over_region_rate, r_); }, recs);
     expect_f64(f, g + "saturation_value", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_value, r_); }, recs);
     expect_f64(f, g + "saturation_time", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_time, r_); }, recs);
     const std::string b = "/entanglement/stabilizer/";
@@ -613,9 +623,9 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       }
       return o;
     }, recs);
-    // t, region_size, region_sites, wall_time, cuts, lyapunov_rate; gaussian 7;
+    // t, region_size, region_sites, wall_time, cuts, lyapunov_rate, region_rate; gaussian 8;
     // stabilizer: local_dim + 9 + profile_t + profile
-    ent_count = 6 + (e.gaussian ? 7 : 0) + (n_ ? 10 + (e.profile_stride ? 2 : 0) : 0);
+    ent_count = 7 + (e.gaussian ? 8 : 0) + (n_ ? 10 + (e.profile_stride ? 2 : 0) : 0);
   }
 
   // units and meaning on every dataset; the documented units pinned
@@ -636,6 +646,7 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/chaos/histogram/counts", "1"},
       {"/chaos/histogram/edges", "1/period"},
       {"/bounds/region_size", "sites"},
+      {"/bounds/cuts", "1"},
       {"/bounds/lyapunov_rate", "nats/period"},
       {"/bounds/hilbert_cap", "nats"},
       {"/bounds/lightcone_rate", "nats/period"},
@@ -648,11 +659,13 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/entanglement/wall_time", "s"},
       {"/entanglement/cuts", "1"},
       {"/entanglement/lyapunov_rate", "nats/period"},
+      {"/entanglement/region_rate", "nats/period"},
       {"/entanglement/gaussian/entropy", "nats"},
       {"/entanglement/gaussian/radius", "nats"},
       {"/entanglement/gaussian/failures", "1"},
       {"/entanglement/gaussian/slope", "nats/period"},
       {"/entanglement/gaussian/slope_over_lyapunov", "1"},
+      {"/entanglement/gaussian/slope_over_region_rate", "1"},
       {"/entanglement/gaussian/saturation_value", "nats"},
       {"/entanglement/gaussian/saturation_time", "periods"},
       {"/entanglement/stabilizer/local_dim", "1"},
@@ -1082,7 +1095,8 @@ TEST(ResultFile, AllFailedAndEmptyAxes) {
     EXPECT_EQ(shape_of(rf.id, "/chaos/histogram/edges"), (std::vector<hsize_t>{5, 0}));
     EXPECT_EQ(shape_of(rf.id, "/bounds/region_size"), (std::vector<hsize_t>{0}));
     EXPECT_EQ(shape_of(rf.id, "/bounds/hilbert_cap"), (std::vector<hsize_t>{5, 0, 2}));
-    EXPECT_EQ(shape_of(rf.id, "/bounds/lightcone_rate"), (std::vector<hsize_t>{5, 2}));
+    EXPECT_EQ(shape_of(rf.id, "/bounds/lightcone_rate"), (std::vector<hsize_t>{5, 0, 2}));
+    EXPECT_EQ(shape_of(rf.id, "/bounds/cuts"), (std::vector<hsize_t>{5, 0}));
     EXPECT_EQ(shape_of(rf.id, "/entanglement/gaussian/entropy"), (std::vector<hsize_t>{5, 2, 4}));
     EXPECT_EQ(shape_of(rf.id, "/entanglement/stabilizer/profile"), (std::vector<hsize_t>{5, 2, 2, 9}));
     for (double x : read_raw<double>(rf.id, "/entanglement/stabilizer/entropy", H5T_NATIVE_DOUBLE)) EXPECT_TRUE(std::isnan(x));
@@ -1142,13 +1156,13 @@ PointRecord canonical(PointRecord r, std::int64_t row) {
   for (auto* v : {&r.exponent_errors, &r.hist_counts, &r.hist_edges, &r.limit_hist_counts,
                   &r.limit_hist_edges, &r.lyapunov_rate, &r.hilbert_cap, &r.lightcone_rate,
                   &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone,
-                  &r.ent_lyapunov_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
-                  &r.gauss_slope_over_lyapunov, &r.gauss_saturation_value, &r.gauss_saturation_time,
-                  &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
-                  &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate,
-                  &r.stab_profile})
+                  &r.ent_lyapunov_rate, &r.ent_region_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
+                  &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate, &r.gauss_saturation_value,
+                  &r.gauss_saturation_time, &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov,
+                  &r.stab_slope_over_lightcone, &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap,
+                  &r.stab_lightcone_rate, &r.stab_profile})
     canon(*v);
-  for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations})
+  for (auto* v : {&r.cuts, &r.ent_cuts, &r.gauss_failures, &r.stab_violations})
     if (std::all_of(v->begin(), v->end(), [](std::int64_t x) { return x == -1; })) v->clear();
   return r;
 }
@@ -1409,7 +1423,8 @@ TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
   auto part = my_records(Dist::Cyclic);
   for (auto& r : part) {
     for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
-                    &r.gauss_saturation_value, &r.gauss_saturation_time, &r.stab_profile})
+                    &r.gauss_slope_over_region_rate, &r.gauss_saturation_value, &r.gauss_saturation_time,
+                    &r.stab_profile})
       v->clear();
     r.gauss_failures.clear();
   }
@@ -1428,7 +1443,8 @@ TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
     for (std::int64_t i = 0; i < kP; ++i) {
       PointRecord r = make_record(i);
       for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
-                      &r.gauss_saturation_value, &r.gauss_saturation_time, &r.stab_profile})
+                      &r.gauss_slope_over_region_rate, &r.gauss_saturation_value, &r.gauss_saturation_time,
+                      &r.stab_profile})
         v->clear();
       r.gauss_failures.clear();
       toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
@@ -1681,18 +1697,21 @@ TEST(ResultFile, ReadResultsErrors) {
       o.write(bytes.data(), static_cast<std::streamsize>(bytes.size() / 2));
     }
     expect_read_error(half, "corrupt");
-    // an unsupported layout version
-    const std::string v2 = scratch("v2.h5");
-    fs::copy_file(good, v2);
-    {
-      EditFile f(v2);
-      ASSERT_GE(f.id, 0);
-      const hid_t a = H5Aopen(f.id, "layout_version", H5P_DEFAULT);
-      const std::int64_t two = 2;
-      ASSERT_GE(H5Awrite(a, H5T_NATIVE_INT64, &two), 0);
-      H5Aclose(a);
+    // an unsupported layout version: a file of an older toral (version 1 had
+    // /bounds/cuts per point and lightcone_rate per N), and a future one
+    for (const std::int64_t version : {std::int64_t{1}, std::int64_t{3}}) {
+      const std::string vf = scratch("v" + std::to_string(version) + ".h5");
+      fs::copy_file(good, vf);
+      {
+        EditFile f(vf);
+        ASSERT_GE(f.id, 0);
+        const hid_t a = H5Aopen(f.id, "layout_version", H5P_DEFAULT);
+        ASSERT_GE(H5Awrite(a, H5T_NATIVE_INT64, &version), 0);
+        H5Aclose(a);
+      }
+      expect_read_error(vf, "unsupported layout version " + std::to_string(version) +
+                                " (this toral reads layout version 2)");
     }
-    expect_read_error(v2, "unsupported layout version 2");
     // a required dataset missing
     const std::string miss = scratch("missing_dataset.h5");
     fs::copy_file(good, miss);

@@ -134,10 +134,10 @@ PointRecord make_record(std::int64_t i) {
   r.limit_accuracy = special(u + 9);
   r.limit_hist_counts = vec(u + 3, u % 2 ? 4 : 0);
   r.limit_hist_edges = vec(u + 4, u % 2 ? 5 : 0);
-  r.cuts = i % 3 ? 2 : -1;
+  for (std::size_t l = 0; l < u % 3; ++l) r.cuts.push_back(l % 2 ? -1 : static_cast<std::int64_t>(2 - i % 3));
   r.lyapunov_rate = vec(u + 6, u % 3);
   r.hilbert_cap = vec(u + 7, (u % 3) * 2);
-  r.lightcone_rate = vec(u + 8, 2);
+  r.lightcone_rate = vec(u + 8, (u % 3) * 2);
   r.ehrenfest_time = vec(u + 9, i % 2 ? 2 : 0);
   r.saturation_lyapunov = vec(u + 10, (u % 3) * 2);
   r.saturation_lightcone = vec(u + 11, (u % 3) * 2);
@@ -147,11 +147,13 @@ PointRecord make_record(std::int64_t i) {
     r.ent_wall_time = special(u + 12);
     for (std::size_t k = 0; k < nr; ++k) r.ent_cuts.push_back(k % 2 ? -1 : static_cast<std::int64_t>(k + u));
     r.ent_lyapunov_rate = vec(u + 13, nr);
+    r.ent_region_rate = vec(u + 29, nr);
     r.gauss_entropy = vec(u + 14, nr * nt);
     r.gauss_radius = vec(u + 15, nr * nt);
     r.gauss_failures.assign(nr, i % 5 == 0 ? -1 : static_cast<std::int64_t>(u));
     r.gauss_slope = vec(u + 16, nr);
     r.gauss_slope_over_lyapunov = vec(u + 17, nr);
+    r.gauss_slope_over_region_rate = vec(u + 30, nr);
     r.gauss_saturation_value = vec(u + 18, nr);
     r.gauss_saturation_time = vec(u + 19, nr);
     r.stab_entropy = vec(u + 20, nn * nr * nt);
@@ -380,14 +382,12 @@ TEST(Journal, BadHeadersAreErrors) {
     b[8] = static_cast<char>(kJournalVersion + 1);  // a later version
     expect_error(b, "unsupported journal format version " + std::to_string(kJournalVersion + 1));
   }
-  {
-    // journals of earlier formats (1: before /entanglement, 2: before the
-    // exact zero count) are refused by name
-    for (char v : {1, 2}) {
-      std::string b = full;
-      b[8] = v;
-      expect_error(b, "unsupported journal format version " + std::to_string(v) + " (this toral reads version 3)");
-    }
+  for (const char old : {1, 2}) {
+    // journals of the previous formats (1: before /entanglement; 2: before the
+    // exact zero count, the region rate and the per-ell cuts) are refused by name
+    std::string b = full;
+    b[8] = old;
+    expect_error(b, "unsupported journal format version " + std::to_string(old) + " (this toral reads version 3)");
   }
   {
     std::string b = full;

@@ -3,6 +3,7 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
+#include <limits>
 #include <map>
 #include <random>
 
@@ -248,7 +249,12 @@ TEST(Bounds, LyapunovRateAndCaps) {
   const Circuit c = random_symplectic_circuit(12, Boundary::Periodic, rng, true);
   const Spectrum s = dense_spectrum(c);
   const ChaosSummary cs = summarize(s, c.L, SummaryOptions{});
-  BoundsInput in{c.L, s.exponents, cs.lambda_max, cs.ks_rate, 2};
+  BoundsInput in;
+  in.L = c.L;
+  in.boundary = Boundary::Periodic;
+  in.top = s.exponents;
+  in.lambda_max = cs.lambda_max;
+  in.ks_rate = cs.ks_rate;
   const std::vector<std::int64_t> ells = {1, 2, 3, 6, 9, 11, 12, 0};
   const std::vector<std::int64_t> Ns = {2, 5};
   const Bounds b = entanglement_bounds(in, ells, Ns);
@@ -273,14 +279,76 @@ TEST(Bounds, LyapunovRateAndCaps) {
   // symmetric under ell -> L - ell (pure global state)
   EXPECT_DOUBLE_EQ(b.lyapunov_rate[0], b.lyapunov_rate[5]);
   EXPECT_DOUBLE_EQ(b.lyapunov_rate[2], b.lyapunov_rate[4]);
-  for (std::size_t j = 0; j < Ns.size(); ++j) {
-    EXPECT_DOUBLE_EQ(b.lightcone_rate[j], 4 * std::log(double(Ns[j])));
+  for (std::size_t j = 0; j < Ns.size(); ++j)
     EXPECT_DOUBLE_EQ(b.ehrenfest_time[j], std::log(double(Ns[j])) / cs.lambda_max);
-  }
+  // a block inside a ring has two cuts (1 <= ell <= L - 1); ell = L none; ell = 0 is no block
+  EXPECT_EQ(b.cuts, (std::vector<std::int64_t>{2, 2, 2, 2, 2, 2, 0, -1}));
+  for (std::size_t i = 0; i < ells.size(); ++i)
+    for (std::size_t j = 0; j < Ns.size(); ++j) {
+      const double lc = b.lightcone_rate[i * Ns.size() + j];
+      if (ells[i] >= 1 && ells[i] < c.L)
+        EXPECT_DOUBLE_EQ(lc, 4 * std::log(double(Ns[j])));
+      else
+        EXPECT_TRUE(std::isnan(lc));
+    }
   // Fewer known exponents than needed: NaN, never a partial sum.
   in.top.resize(3);
   EXPECT_TRUE(std::isnan(lyapunov_rate(in.top, c.L, 2)));
   EXPECT_FALSE(std::isnan(lyapunov_rate(in.top, c.L, 1)));
+}
+
+TEST(Bounds, CutsPerBlockSize) {
+  // Counted by hand from the bond definition (kernels/model.hpp: bond b joins
+  // b and b + 1 mod L; L bonds on a ring, L - 1 on an open chain), and
+  // checked against boundary_cuts of the same site sets in test_entangle.
+  for (std::int64_t ell = 1; ell <= 7; ++ell) EXPECT_EQ(block_cuts(8, Boundary::Periodic, false, ell), 2);
+  EXPECT_EQ(block_cuts(8, Boundary::Periodic, false, 8), 0);
+  // an open chain, block in the bulk: strictly inside needs ell <= L - 2
+  EXPECT_EQ(block_cuts(8, Boundary::Open, false, 1), 2);
+  EXPECT_EQ(block_cuts(8, Boundary::Open, false, 6), 2);
+  EXPECT_EQ(block_cuts(8, Boundary::Open, false, 7), 1);  // touches an end
+  EXPECT_EQ(block_cuts(8, Boundary::Open, false, 8), 0);
+  // at the edge: one cut
+  for (std::int64_t ell = 1; ell <= 7; ++ell) EXPECT_EQ(block_cuts(8, Boundary::Open, true, ell), 1);
+  EXPECT_EQ(block_cuts(8, Boundary::Open, true, 8), 0);
+  EXPECT_EQ(block_cuts(2, Boundary::Open, false, 1), 1);  // L = 2: no room inside
+  for (std::int64_t ell : {0, -1, 9}) EXPECT_EQ(block_cuts(8, Boundary::Open, false, ell), -1);
+  // the bounds use them per ell: light-cone 2 c ln N, saturation cap / (2 c ln N)
+  BoundsInput in;
+  in.L = 8;
+  in.boundary = Boundary::Open;
+  in.top.assign(16, 0.5);
+  in.lambda_max = 0.5;
+  const Bounds b = entanglement_bounds(in, {6, 7}, {3});
+  EXPECT_EQ(b.cuts, (std::vector<std::int64_t>{2, 1}));
+  EXPECT_DOUBLE_EQ(b.lightcone_rate[0], 4 * std::log(3.0));
+  EXPECT_DOUBLE_EQ(b.lightcone_rate[1], 2 * std::log(3.0));
+  EXPECT_DOUBLE_EQ(b.saturation_lightcone[1], 1 * std::log(3.0) / (2 * std::log(3.0)));
+}
+
+TEST(Bounds, RatioOverRateRule) {
+  // docs/bounds.md: x / rate for rate > 0; over a zero (or negative) rate
+  // +inf for x > 0, -inf for x < 0, NaN for 0; NaN in, NaN out.
+  const double inf = std::numeric_limits<double>::infinity(), nan = std::numeric_limits<double>::quiet_NaN();
+  EXPECT_DOUBLE_EQ(rate_ratio(3.0, 2.0), 1.5);
+  EXPECT_EQ(rate_ratio(1e-3, 0.0), inf);
+  EXPECT_EQ(rate_ratio(-1e-3, 0.0), -inf);
+  EXPECT_TRUE(std::isnan(rate_ratio(0.0, 0.0)));
+  EXPECT_EQ(rate_ratio(2.0, -0.0), inf);
+  EXPECT_EQ(rate_ratio(2.0, -1e-17), inf);  // a negative rate counts as zero
+  EXPECT_TRUE(std::isnan(rate_ratio(nan, 1.0)));
+  EXPECT_TRUE(std::isnan(rate_ratio(1.0, nan)));
+  // every saturation time follows it: a circuit without chaos (all exponents
+  // exactly 0) never reaches the cap at its Lyapunov rate
+  BoundsInput in;
+  in.L = 6;
+  in.top.assign(12, 0.0);
+  in.lambda_max = 0.0;
+  const Bounds b = entanglement_bounds(in, {2}, {2});
+  EXPECT_EQ(b.lyapunov_rate[0], 0.0);
+  EXPECT_EQ(b.saturation_lyapunov[0], inf);
+  EXPECT_EQ(b.ehrenfest_time[0], inf);
+  EXPECT_DOUBLE_EQ(b.saturation_lightcone[0], 2 * std::log(2.0) / (4 * std::log(2.0)));
 }
 
 // --- families and draws -----------------------------------------------------

@@ -21,7 +21,7 @@ def write(path, *, stabilizer=True, gaussian=True):
     P, nR, nM, T = 3, 2, 2, 10
     t = np.arange(T + 1)
     with h5py.File(path, "w") as f:
-        f.attrs["layout_version"] = np.int64(1)
+        f.attrs["layout_version"] = np.int64(2)
         f.create_dataset("points/status", data=np.zeros(P, dtype=np.int32))
         e = f.create_group("entanglement")
         e["t"] = t
@@ -30,12 +30,15 @@ def write(path, *, stabilizer=True, gaussian=True):
         e["cuts"] = np.array([[2, 2], [2, -1], [1, 1]])  # region 1 does not fit point 1
         lam = np.array([[1.0, 2.0], [0.5, np.nan], [0.25, 0.75]])
         e["lyapunov_rate"] = lam
+        rate = np.array([[1.0, 1.6], [0.5, np.nan], [0.0, 0.75]])  # region (0, 1) reaches less; (2, 0) none
+        e["region_rate"] = rate
         if gaussian:
             S = lam[:, :, None] * t[None, None, :]
             e["gaussian/entropy"] = S
             e["gaussian/radius"] = np.full(S.shape, 1e-13)
             e["gaussian/slope"] = lam
             e["gaussian/slope_over_lyapunov"] = np.where(np.isfinite(lam), 1.0, np.nan)
+            e["gaussian/slope_over_region_rate"] = np.where(rate > 0, lam / np.where(rate > 0, rate, 1), np.inf)
         if stabilizer:
             e["stabilizer/local_dim"] = np.array([2, 3])
             cap = np.log(np.array([2, 3]))[None, :, None] * np.ones((P, nM, nR))
@@ -52,14 +55,17 @@ def test_table_lists_fitting_regions_with_the_stored_ratios(tmp_path):
     write(p)
     c = tc.load(str(p))
     lines = tc.format_table(c).splitlines()
-    assert lines[0].split() == ["point", "region", "|A|", "Lambda_A", "gauss_slope", "gauss/Lambda",
-                                "N2_slope", "N2/Lambda", "N2/light", "N3_slope", "N3/Lambda", "N3/light"]
+    assert lines[0].split() == ["point", "region", "|A|", "Lambda_A", "rate_A", "gauss_slope", "gauss/Lambda",
+                                "gauss/rate", "N2_slope", "N2/Lambda", "N2/light", "N3_slope", "N3/Lambda",
+                                "N3/light"]
     rows = [l.split() for l in lines[1:]]
     assert [(r[0], r[1]) for r in rows] == [("0", "0"), ("0", "1"), ("1", "0"), ("2", "0"), ("2", "1")]
-    r = rows[1]  # point 0, region 1: Lambda 2, slope 2, ratio 1; N = 2: 0.05 / 2, 0.05 / (2 ln 2)
-    assert float(r[3]) == 2.0 and float(r[4]) == 2.0 and float(r[5]) == 1.0
-    assert float(r[7]) == pytest.approx(0.025, rel=1e-3)
-    assert float(r[8]) == pytest.approx(0.05 / (2 * np.log(2)), rel=1e-3)
+    r = rows[1]  # point 0, region 1: Lambda 2, rate 1.6, slope 2, ratios 1 and 1.25; N = 2: 0.05 / 2, 0.05 / (2 ln 2)
+    assert float(r[3]) == 2.0 and float(r[4]) == 1.6 and float(r[5]) == 2.0 and float(r[6]) == 1.0
+    assert float(r[7]) == 1.25
+    assert float(r[9]) == pytest.approx(0.025, rel=1e-3)
+    assert float(r[10]) == pytest.approx(0.05 / (2 * np.log(2)), rel=1e-3)
+    assert rows[3][7] == "inf"  # a positive slope over a zero rate (docs/bounds.md)
 
 
 def test_plot_is_written_and_bad_input_is_one_line(tmp_path):
@@ -79,13 +85,13 @@ def test_plot_is_written_and_bad_input_is_one_line(tmp_path):
         assert len(r.stderr.strip().splitlines()) == 1 and fragment in r.stderr
     bare = tmp_path / "bare.h5"
     with h5py.File(bare, "w") as f:
-        f.attrs["layout_version"] = np.int64(1)
+        f.attrs["layout_version"] = np.int64(2)
     r = run(bare, "--table")
     assert r.returncode == 2 and "no /entanglement group" in r.stderr
 
 
 def test_gaussian_only_and_stabilizer_only_files(tmp_path):
-    for kw, cols in (({"stabilizer": False}, 6), ({"gaussian": False}, 10)):
+    for kw, cols in (({"stabilizer": False}, 8), ({"gaussian": False}, 11)):
         p = tmp_path / f"{sorted(kw)[0]}.h5"
         write(p, **kw)
         c = tc.load(str(p))

@@ -33,8 +33,8 @@ def _vlstr_list(values):
 
 
 def write_result(path, params: dict[str, np.ndarray], status, lambda_max, ks_density, *,
-                 swept, sweep_names, layout_version=1, K=3, bins=2, ells=(1, 2), Ns=(2,), bulk=False):
-    """A complete layout-1 file (every required group and dataset)."""
+                 swept, sweep_names, layout_version=2, K=3, bins=2, ells=(1, 2), Ns=(2,), bulk=False):
+    """A complete layout-2 file (every required group and dataset)."""
     status = np.asarray(status, dtype=np.int32)
     P = status.size
     nan = np.full(P, np.nan)
@@ -95,10 +95,10 @@ def write_result(path, params: dict[str, np.ndarray], status, lambda_max, ks_den
         nl, nN = len(ells), len(Ns)
         ds(b, "region_size", np.array(ells), "sites", "ell", np.int64)
         ds(b, "local_dim", np.array(Ns), "1", "N", np.int64)
-        ds(b, "cuts", np.full(P, 2), "1", "cuts", np.int64)
+        ds(b, "cuts", np.full((P, nl), 2), "1", "cuts", np.int64)
         ds(b, "lyapunov_rate", np.full((P, nl), np.nan), "nats/period", "rate")
         ds(b, "hilbert_cap", np.full((P, nl, nN), np.nan), "nats", "cap")
-        ds(b, "lightcone_rate", np.full((P, nN), np.nan), "nats/period", "lc")
+        ds(b, "lightcone_rate", np.full((P, nl, nN), np.nan), "nats/period", "lc")
         ds(b, "ehrenfest_time", np.full((P, nN), np.nan), "periods", "te")
         ds(b, "saturation_lyapunov", np.full((P, nl, nN), np.nan), "periods", "sat")
         ds(b, "saturation_lightcone", np.full((P, nl, nN), np.nan), "periods", "sat")
@@ -309,18 +309,20 @@ def test_hdf5_but_not_toral(tmp_path, capsys):
     one_line_error(capsys, "not a toral result file")
 
 
-def test_wrong_layout_version(tmp_path, capsys):
+@pytest.mark.parametrize("version", [1, 3])
+def test_wrong_layout_version(tmp_path, capsys, version):
+    # 1: a file of an older toral (per-point /bounds/cuts); 3: a later one
     params = {"sweep": np.zeros(2, np.int64), "x": np.array([0, 1])}
-    p = write_result(str(tmp_path / "v2.h5"), params, [0, 0], [1.0, 2.0], [0.1, 0.2], swept=["x"],
-                     sweep_names=["s"], layout_version=2)
+    p = write_result(str(tmp_path / f"v{version}.h5"), params, [0, 0], [1.0, 2.0], [0.1, 0.2], swept=["x"],
+                     sweep_names=["s"], layout_version=version)
     assert tm.main([p]) == 2
-    one_line_error(capsys, "unsupported layout_version 2")
+    one_line_error(capsys, f"unsupported layout_version {version}")
 
 
 def test_incomplete_file(tmp_path, capsys):
     p = str(tmp_path / "inc.h5")
     with h5py.File(p, "w") as f:
-        f.attrs["layout_version"] = np.int64(1)
+        f.attrs["layout_version"] = np.int64(2)
         f.create_group("points")
     assert tm.main([p]) == 2
     one_line_error(capsys, "/points/status")

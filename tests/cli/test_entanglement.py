@@ -135,12 +135,14 @@ def test_shapes_match_the_config(runs):
     shapes = {
         "entanglement/cuts": (P, nR),
         "entanglement/lyapunov_rate": (P, nR),
+        "entanglement/region_rate": (P, nR),
         "entanglement/wall_time": (P,),
         "entanglement/gaussian/entropy": (P, nR, nt),
         "entanglement/gaussian/radius": (P, nR, nt),
         "entanglement/gaussian/failures": (P, nR),
         "entanglement/gaussian/slope": (P, nR),
         "entanglement/gaussian/slope_over_lyapunov": (P, nR),
+        "entanglement/gaussian/slope_over_region_rate": (P, nR),
         "entanglement/gaussian/saturation_value": (P, nR),
         "entanglement/gaussian/saturation_time": (P, nR),
         "entanglement/stabilizer/entropy": (P, nN, nR, nt),
@@ -312,6 +314,44 @@ def test_cat_chain_gaussian_slope_is_the_cat_exponent(runs, run_toral):
     assert "exact entanglement" in text and "1.92485" in text
 
 
+def test_gaussian_slope_is_the_region_rate(runs):
+    # Every region of every point, vacuum: ln vol(P_A S^t) <= S_A(t) <= ln vol(P_A S^t) + m (1 - ln 2),
+    # m = min(|A|, L - |A|) (kernels/region_rate.hpp: Williamson's theorem, det sigma_A = prod nu_j^2), so
+    # the late slope of S_A and the region rate (the late rate of ln vol, same window) differ by at most
+    # the largest least-squares slope of a sequence confined to a band of that width. Ratios over the rates
+    # follow the rule of docs/bounds.md (numpy computes them here).
+    _, out = runs
+    d = load(out["position"][1])
+    L = d["points/sites"]
+    rr, lam = d["entanglement/region_rate"], d["entanglement/lyapunov_rate"]
+    slope = d["entanglement/gaussian/slope"]
+    t = np.arange(T + 1)
+    w = t[min((3 * T + 3) // 4, T - 1):]
+    per_width = np.sum(np.clip(w - w.mean(), 0, None)) / np.sum((w - w.mean()) ** 2)
+
+    def ratio(x, r):
+        if np.isnan(x) or np.isnan(r):
+            return math.nan
+        if r > 0:
+            return x / r
+        return math.inf if x > 0 else (-math.inf if x < 0 else math.nan)
+
+    checked = 0
+    for i in range(len(L)):
+        for k, sites in enumerate(REGIONS):
+            m = min(len(sites), L[i] - len(sites))
+            if max(sites) >= L[i] or m == 0:
+                assert np.isnan(rr[i, k])  # does not fit, or the whole lattice
+                continue
+            assert abs(slope[i, k] - rr[i, k]) <= m * (1 - math.log(2)) * per_width + 1e-12, (i, k)
+            for name, rate in (("slope_over_region_rate", rr[i, k]), ("slope_over_lyapunov", lam[i, k])):
+                got, want = d["entanglement/gaussian/" + name][i, k], ratio(slope[i, k], rate)
+                assert (np.isnan(got) and np.isnan(want)) or got == pytest.approx(want, rel=1e-15), (i, k, name)
+            checked += 1
+    assert checked > 30
+    assert d["units"]["entanglement/region_rate"] == "nats/period"
+
+
 def test_shards_and_merge_keep_entanglement(runs, run_toral):
     # Shards are read back (read_results) and rewritten by `merge`: the
     # /entanglement datasets, the NaN padding of the profile included, survive.
@@ -326,7 +366,7 @@ def test_shards_and_merge_keep_entanglement(runs, run_toral):
     run_toral("merge", merged, *shards, check=True)
     a, b = load(h5), load(merged)
     keys = [k for k in a if k.startswith("entanglement/") and k != "entanglement/wall_time"]
-    assert len(keys) == 24 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
+    assert len(keys) == 26 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
     for k in keys:
         np.testing.assert_array_equal(a[k], b[k], err_msg=k)
 
@@ -448,6 +488,8 @@ def test_ensemble_stats_of_the_curves_match_numpy(runs):
             "entanglement_lyapunov_rate": e["lyapunov_rate"][()],
             "gaussian_slope": e["gaussian/slope"][()],
             "gaussian_slope_over_lyapunov": e["gaussian/slope_over_lyapunov"][()],
+            "entanglement_region_rate": e["region_rate"][()],
+            "gaussian_slope_over_region_rate": e["gaussian/slope_over_region_rate"][()],
             "stabilizer_slope": e["stabilizer/slope"][()],
             "stabilizer_slope_over_lightcone": e["stabilizer/slope_over_lightcone"][()],
             "stabilizer_saturation_value": e["stabilizer/saturation_value"][()],

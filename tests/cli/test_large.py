@@ -95,7 +95,8 @@ stabilizer_dims = [2, 3]
 sites = { from = 0, to = 3 }
 stabilizer = "momentum"
 """
-CURVES = ("entanglement/gaussian/entropy", "entanglement/gaussian/radius", "entanglement/stabilizer/entropy")
+CURVES = ("entanglement/gaussian/entropy", "entanglement/gaussian/radius", "entanglement/stabilizer/entropy",
+          "entanglement/region_rate")
 
 
 def test_rank_groups_do_not_change_results(tmp_path, run_toral):
@@ -163,6 +164,7 @@ def test_time_random_circuit_goes_to_tangent(tmp_path, run_toral):
         # no curve for gates redrawn every period, but the region's cuts and its Lyapunov rate, the sum of the
         # 2 min(2, L - 2) = 4 largest (tangent) exponents (docs/entanglement.md)
         assert np.isnan(f["entanglement/gaussian/entropy"][()]).all()
+        assert np.isnan(f["entanglement/region_rate"][()]).all()  # needs one time-periodic S as well
         assert np.all(f["entanglement/cuts"][()] == 1)  # the block {0, 1} at the open end of a chain
         np.testing.assert_allclose(f["entanglement/lyapunov_rate"][:, 0], res["chaos/exponents"][:, :4].sum(axis=1),
                                    rtol=1e-15, atol=0)
