@@ -4,6 +4,7 @@ import json
 import math
 import os
 import subprocess
+import sys
 
 import h5py
 import numpy as np
@@ -448,12 +449,25 @@ stabilizer_dims = [2]
     assert "entangle" not in p.stdout
 
 
+_PEAK_RSS = """
+import os, subprocess, sys
+p = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+_, status, ru = os.wait4(p.pid, 0)
+sys.stderr.write(p.stderr.read().decode())
+print(ru.ru_maxrss)
+sys.exit(os.waitstatus_to_exitcode(status))
+"""
+
+
 def peak_rss_bytes(cmd):
-    """Peak resident memory of one child process (os.wait4 gives that child's own rusage; Linux: KiB)."""
-    p = subprocess.Popen([str(x) for x in cmd], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, env=mpi_env())
-    _, status, ru = os.wait4(p.pid, 0)
-    assert os.waitstatus_to_exitcode(status) == 0, p.stderr.read()
-    return ru.ru_maxrss * 1024
+    """Peak resident memory of one child process (os.wait4 gives that child's own rusage; Linux: KiB).
+    The child is started from a fresh, small interpreter: Linux keeps a process's peak across exec,
+    so a child forked straight from this (possibly large) test process would report at least the
+    test process's own size."""
+    p = subprocess.run([sys.executable, "-c", _PEAK_RSS, *map(str, cmd)], capture_output=True, text=True,
+                       env=mpi_env())
+    assert p.returncode == 0, p.stderr
+    return int(p.stdout.split()[-1]) * 1024
 
 
 def test_check_counts_the_kernels_memory_and_refuses_what_cannot_fit(tmp_path, run_toral, toral):
