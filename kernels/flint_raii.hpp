@@ -8,6 +8,7 @@
 #include <acb.h>
 #include <acb_poly.h>
 #include <arb.h>
+#include <arb_mat.h>
 #include <flint/fmpz.h>
 #include <flint/fmpz_mat.h>
 #include <flint/fmpz_mpoly.h>
@@ -70,6 +71,19 @@ class Mat {
 
  private:
   fmpz_mat_t m_;
+};
+
+class BallMat {
+ public:
+  BallMat(slong rows, slong cols) { arb_mat_init(m_, rows, cols); }
+  ~BallMat() { arb_mat_clear(m_); }
+  BallMat(const BallMat&) = delete;
+  BallMat& operator=(const BallMat&) = delete;
+  arb_mat_struct* get() { return m_; }
+  const arb_mat_struct* get() const { return m_; }
+
+ private:
+  arb_mat_t m_;
 };
 
 class CVec {

@@ -5,6 +5,8 @@
 #include <flint/fmpz.h>
 #include <flint/fmpz_mat.h>
 
+#include "flint_raii.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -20,37 +22,10 @@ constexpr double kNaNv = std::numeric_limits<double>::quiet_NaN();
 // Certified radius wanted for every ln vol, relative to max(1, |ln vol|).
 constexpr double kTargetRelative = 1e-14;
 
-struct FmpzMat {
-  fmpz_mat_t m;
-  FmpzMat(slong r, slong c) { fmpz_mat_init(m, r, c); }
-  ~FmpzMat() { fmpz_mat_clear(m); }
-  FmpzMat(const FmpzMat&) = delete;
-  FmpzMat& operator=(const FmpzMat&) = delete;
-};
-
-struct ArbMat {
-  arb_mat_t m;
-  ArbMat(slong r, slong c) { arb_mat_init(m, r, c); }
-  ~ArbMat() { arb_mat_clear(m); }
-  ArbMat(const ArbMat&) = delete;
-  ArbMat& operator=(const ArbMat&) = delete;
-};
-
-struct Arb {
-  arb_t v;
-  Arb() { arb_init(v); }
-  ~Arb() { arb_clear(v); }
-  Arb(const Arb&) = delete;
-  Arb& operator=(const Arb&) = delete;
-};
-
-struct Fmpz {
-  fmpz_t v;
-  Fmpz() { fmpz_init(v); }
-  ~Fmpz() { fmpz_clear(v); }
-  Fmpz(const Fmpz&) = delete;
-  Fmpz& operator=(const Fmpz&) = delete;
-};
+using FmpzMat = flint::Mat;
+using ArbMat = flint::BallMat;
+using Arb = flint::Ball;
+using Fmpz = flint::Int;
 
 // ln x of a positive integer, to double rounding (mantissa and exponent
 // separately, so any size works).
@@ -71,7 +46,7 @@ class Rows {
     R_ = std::make_unique<FmpzMat>(static_cast<slong>(rows.size()), static_cast<slong>(support_.size()));
     for (std::size_t r = 0; r < rows.size(); ++r) {
       const auto it = std::lower_bound(support_.begin(), support_.end(), rows[r]);
-      fmpz_one(fmpz_mat_entry(R_->m, static_cast<slong>(r), it - support_.begin()));
+      fmpz_one(fmpz_mat_entry(R_->get(), static_cast<slong>(r), it - support_.begin()));
     }
   }
 
@@ -88,7 +63,7 @@ class Rows {
         next.push_back(j);
         mark_[static_cast<std::size_t>(j)] = 0;
       }
-    const slong rows = R_->m->r;
+    const slong rows = R_->get()->r;
     auto Rn = std::make_unique<FmpzMat>(rows, static_cast<slong>(next.size()));
     for (std::size_t ci = 0; ci < support_.size(); ++ci) {
       const std::int64_t g = support_[ci];
@@ -96,14 +71,14 @@ class Rows {
         const slong jj = static_cast<slong>(where_[static_cast<std::size_t>(S_.col[e])]);
         const slong v = static_cast<slong>(S_.val[e]);
         for (slong r = 0; r < rows; ++r)
-          fmpz_addmul_si(fmpz_mat_entry(Rn->m, r, jj), fmpz_mat_entry(R_->m, r, static_cast<slong>(ci)), v);
+          fmpz_addmul_si(fmpz_mat_entry(Rn->get(), r, jj), fmpz_mat_entry(R_->get(), r, static_cast<slong>(ci)), v);
       }
     }
     for (std::int64_t j : next) where_[static_cast<std::size_t>(j)] = -1;
     std::vector<slong> keep;
     for (std::size_t j = 0; j < next.size(); ++j) {
       bool nz = false;
-      for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->m, r, static_cast<slong>(j)));
+      for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->get(), r, static_cast<slong>(j)));
       if (nz) keep.push_back(static_cast<slong>(j));
     }
     if (keep.size() != next.size()) {
@@ -111,7 +86,7 @@ class Rows {
       std::vector<std::int64_t> cols;
       for (std::size_t j = 0; j < keep.size(); ++j) {
         for (slong r = 0; r < rows; ++r)
-          fmpz_swap(fmpz_mat_entry(Rk->m, r, static_cast<slong>(j)), fmpz_mat_entry(Rn->m, r, keep[j]));
+          fmpz_swap(fmpz_mat_entry(Rk->get(), r, static_cast<slong>(j)), fmpz_mat_entry(Rn->get(), r, keep[j]));
         cols.push_back(next[static_cast<std::size_t>(keep[j])]);
       }
       Rn = std::move(Rk);
@@ -131,23 +106,23 @@ class Rows {
   // last resort (past 4 times R's bit size, where every step is exact).
   // Returns the midpoint and sets `radius`; `prec` carries over to the next t.
   double log_volume(slong& prec, double& radius, double target) const {
-    const slong n = R_->m->r, w = R_->m->c;
+    const slong n = R_->get()->r, w = R_->get()->c;
     const slong cap = 4 * std::max<slong>(64, static_cast<slong>(bits())) + 256;
     for (;; prec *= 2) {
       if (prec > cap) break;
       ArbMat A(n, w), AT(w, n), G(n, n), L(n, n);
-      arb_mat_set_round_fmpz_mat(A.m, R_->m, prec);
-      arb_mat_transpose(AT.m, A.m);
-      arb_mat_mul(G.m, A.m, AT.m, prec);
-      if (!arb_mat_cho(L.m, G.m, prec)) continue;
+      arb_mat_set_round_fmpz_mat(A.get(), R_->get(), prec);
+      arb_mat_transpose(AT.get(), A.get());
+      arb_mat_mul(G.get(), A.get(), AT.get(), prec);
+      if (!arb_mat_cho(L.get(), G.get(), prec)) continue;
       Arb sum, lg;
-      arb_zero(sum.v);
+      arb_zero(sum.get());
       for (slong i = 0; i < n; ++i) {
-        arb_log(lg.v, arb_mat_entry(L.m, i, i), prec);
-        arb_add(sum.v, sum.v, lg.v, prec);
+        arb_log(lg.get(), arb_mat_entry(L.get(), i, i), prec);
+        arb_add(sum.get(), sum.get(), lg.get(), prec);
       }
-      const double mid = arf_get_d(arb_midref(sum.v), ARF_RND_NEAR);
-      const double rad = mag_get_d(arb_radref(sum.v));
+      const double mid = arf_get_d(arb_midref(sum.get()), ARF_RND_NEAR);
+      const double rad = mag_get_d(arb_radref(sum.get()));
       if (std::isfinite(rad) && rad <= target * std::max(1.0, std::fabs(mid))) {
         // the midpoint's rounding to double: half an ulp
         radius = rad + 0.5 * std::ldexp(1.0, std::ilogb(std::max(std::fabs(mid), 1e-300)) - 52);
@@ -156,17 +131,17 @@ class Rows {
     }
     prec = cap;
     FmpzMat G(n, n);
-    fmpz_mat_gram(G.m, R_->m);
+    fmpz_mat_gram(G.get(), R_->get());
     Fmpz d;
-    fmpz_mat_det(d.v, G.m);
-    if (fmpz_sgn(d.v) <= 0)  // R has full row rank (S is invertible): cannot happen
-      throw std::logic_error("region_rate: Gram determinant " + std::string(fmpz_sgn(d.v) == 0 ? "0" : "< 0"));
-    const double mid = 0.5 * log_fmpz(d.v);
+    fmpz_mat_det(d.get(), G.get());
+    if (fmpz_sgn(d.get()) <= 0)  // R has full row rank (S is invertible): cannot happen
+      throw std::logic_error("region_rate: Gram determinant " + std::string(fmpz_sgn(d.get()) == 0 ? "0" : "< 0"));
+    const double mid = 0.5 * log_fmpz(d.get());
     radius = 4.0 * std::ldexp(1.0, std::ilogb(std::max(std::fabs(mid), 1e-300)) - 52);  // rounding of two logs
     return mid;
   }
 
-  std::int64_t bits() const { return static_cast<std::int64_t>(std::labs(fmpz_mat_max_bits(R_->m))); }
+  std::int64_t bits() const { return static_cast<std::int64_t>(std::labs(fmpz_mat_max_bits(R_->get()))); }
   std::int64_t columns() const { return static_cast<std::int64_t>(support_.size()); }
 
  private:
