@@ -194,7 +194,7 @@ int main(int argc, char** argv) {
       toral::check_output_target(comm, output, overwrite || resume);
       const auto outcome = toral::run_sweep(comm, cfg, o);
       if (rank == 0 && outcome.failed > 0)
-        std::fprintf(stderr, "toral: warning: %lld of %lld points failed; see /points/status and /points/message\n",
+        std::fprintf(stderr, "toral: warning: %lld of %lld points failed or are inaccurate (status != 0); see /points/status and /points/message\n",
                      static_cast<long long>(outcome.failed), static_cast<long long>(outcome.points));
     } else if (*check) {
       const toral::Config cfg = load_everywhere(comm, config_path);
