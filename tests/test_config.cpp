@@ -59,6 +59,21 @@ TEST(Config, CartesianProductOrder) {
 
 TEST(Config, LocatedErrors) {
   expect_error(std::string(kBase) + "[spectrum]\nmethd = \"dense\"\n", {"t.toml:9", "spectrum.methd", "unknown key"});
+  // The exact-zero and accuracy keys: ranges and types, located.
+  expect_error(std::string(kBase) + "[spectrum]\ncertify_max = -1\n", {"t.toml:9", "spectrum.certify_max", "0..4096"});
+  expect_error(std::string(kBase) + "[spectrum]\ncertify_max = 5000\n", {"t.toml:9", "spectrum.certify_max"});
+  expect_error(std::string(kBase) + "[spectrum]\ncertify_max = 1.5\n", {"t.toml:9", "spectrum.certify_max"});
+  expect_error(std::string(kBase) + "[spectrum]\nmax_error = 0\n", {"t.toml:9", "spectrum.max_error"});
+  expect_error(std::string(kBase) + "[spectrum]\nmax_error = 2.0\n", {"t.toml:9", "spectrum.max_error"});
+  expect_error(std::string(kBase) + "[spectrum]\nmax_error = \"tiny\"\n", {"t.toml:9", "spectrum.max_error", "number"});
+  {
+    const Config ok = parse_config(std::string(kBase) + "[spectrum]\ncertify_max = 0\nmax_error = 1e-9\n", "t.toml");
+    EXPECT_EQ(ok.spectrum.certify_max, 0);
+    EXPECT_EQ(ok.spectrum.max_error, 1e-9);
+    const Config def = parse_config(kBase, "t.toml");
+    EXPECT_EQ(def.spectrum.certify_max, 192);
+    EXPECT_EQ(def.spectrum.max_error, 1e-6);
+  }
   expect_error(R"([[sweep]]
 sites = 8
 colour = 3
