@@ -304,27 +304,10 @@ void BlochExact::Impl::find_kinks(const fmpz_poly_struct* D) {
   // gcd(D, rev D) after removing z = +-1.
   std::vector<std::pair<double, double>> ys;  // (y, radius)
   if (fmpz_poly_degree(D) >= 2) {
-    Poly rev, g, lin, q, rem;
-    fmpz_poly_reverse(rev.get(), D, fmpz_poly_length(D));
-    fmpz_poly_gcd(g.get(), D, rev.get());
-    for (slong r : {1, -1}) {
-      fmpz_poly_zero(lin.get());
-      fmpz_poly_set_coeff_si(lin.get(), 1, 1);
-      fmpz_poly_set_coeff_si(lin.get(), 0, -r);
-      while (fmpz_poly_degree(g.get()) > 0) {
-        fmpz_poly_divrem(q.get(), rem.get(), g.get(), lin.get());
-        if (!fmpz_poly_is_zero(rem.get())) break;
-        fmpz_poly_swap(g.get(), q.get());
-      }
-    }
-    if (fmpz_poly_degree(g.get()) >= 2) {
-      // palindromic up to sign (see unit_circle.cpp)
-      bool pal = true;
-      const slong n = fmpz_poly_length(g.get());
-      for (slong i = 0; i < n / 2 && pal; ++i) pal = fmpz_equal(g.get()->coeffs + i, g.get()->coeffs + n - 1 - i);
-      if (!pal) fmpz_poly_neg(g.get(), g.get());
-      Poly T;
-      trace_polynomial(T.get(), g.get());
+    Poly T;
+    CircleCensus census;
+    circle_trace_polynomial(T.get(), D, census);
+    if (fmpz_poly_degree(T.get()) >= 1) {
       flint::PolyFactors sq;
       fmpz_poly_factor_squarefree(sq.get(), T.get());
       for (slong i = 0; i < sq.get()->num; ++i) {

@@ -93,9 +93,9 @@ std::int64_t roots_between_minus2_and_2(const fmpz_poly_struct* f) {
   return static_cast<std::int64_t>(pos);
 }
 
-CircleCensus circle_census(const fmpz_poly_struct* p) {
+void circle_trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* p, CircleCensus& c) {
   if (fmpz_poly_is_zero(p)) throw std::invalid_argument("circle_census: zero polynomial");
-  CircleCensus c;
+  c = CircleCensus{};
   c.degree = fmpz_poly_degree(p);
   Poly a, rev, g;
   // Roots at 0 first (rev p would lose them).
@@ -108,7 +108,10 @@ CircleCensus circle_census(const fmpz_poly_struct* p) {
   c.at_one = strip_root(g.get(), 1);
   c.at_minus_one = strip_root(g.get(), -1);
   c.on_circle = c.at_one + c.at_minus_one;
-  if (fmpz_poly_degree(g.get()) <= 0) return c;
+  if (fmpz_poly_degree(g.get()) <= 0) {
+    fmpz_poly_one(T);
+    return;
+  }
   // g is now palindromic up to sign, and -1 (anti-palindromic) would force
   // the root 1, which is gone.
   if (!palindromic(g.get())) {
@@ -116,8 +119,13 @@ CircleCensus circle_census(const fmpz_poly_struct* p) {
     if (!palindromic(g.get()))
       throw std::logic_error("circle_census: gcd(p, rev p) without +-1 is not palindromic");
   }
+  trace_polynomial(T, g.get());
+}
+
+CircleCensus circle_census(const fmpz_poly_struct* p) {
+  CircleCensus c;
   Poly T;
-  trace_polynomial(T.get(), g.get());
+  circle_trace_polynomial(T.get(), p, c);
   flint::PolyFactors fac;
   fmpz_poly_factor_squarefree(fac.get(), T.get());
   for (slong i = 0; i < fac.get()->num; ++i)

@@ -45,6 +45,13 @@ CircleCensus circle_census(const fmpz_poly_struct* p);
 // The same from coefficients, lowest degree first (for tests and small cases).
 CircleCensus circle_census(const std::vector<std::int64_t>& coeffs_low_to_high);
 
+// The steps of circle_census before the count: fills c.degree, c.at_zero,
+// c.at_one and c.at_minus_one (c.on_circle = at_one + at_minus_one) and sets T
+// to the trace polynomial of gcd(p, rev p) without the roots 0 and +-1, whose
+// real roots y in (-2, 2) are the other unit-circle roots as y = 2 Re(mu)
+// (T = 1 when there are none).
+void circle_trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* p, CircleCensus& c);
+
 // T with h(x) = x^m T(x + 1/x), for a palindromic h of even degree 2m.
 // Throws std::invalid_argument when h is not palindromic of even degree.
 void trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* h);
