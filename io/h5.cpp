@@ -1,5 +1,7 @@
 #include "h5.hpp"
 
+#include <hdf5_hl.h>
+
 #include <algorithm>
 #include <limits>
 #include <numeric>
@@ -271,6 +273,36 @@ Dataset open_dataset(const Object& parent, const std::string& name) {
   hid_t ds = H5Dopen2(parent.id(), name.c_str(), H5P_DEFAULT);
   return Dataset(check_id(ds, "H5Dopen2", parent.file(), p), H5Dclose, parent.file(), p,
                  parent.mpio());
+}
+
+void make_scale(const Dataset& d, const std::string& name) {
+  QuietErrors q;
+  check(H5DSset_scale(d.id(), name.c_str()), "H5DSset_scale", d.file(), d.path());
+}
+
+void attach_scale(const Dataset& d, const Dataset& scale, unsigned dim) {
+  QuietErrors q;
+  check(H5DSattach_scale(d.id(), scale.id(), dim), "H5DSattach_scale", d.file(),
+        d.path() + " (dim " + std::to_string(dim) + " to " + scale.path() + ")");
+}
+
+std::vector<std::string> scale_names(const Dataset& d) {
+  QuietErrors q;
+  std::vector<std::string> out;
+  const std::vector<hsize_t> ext = dims(d);
+  for (unsigned k = 0; k < ext.size(); ++k) {
+    std::string name;
+    auto visit = [](hid_t, unsigned, hid_t scale, void* data) -> herr_t {
+      char buf[1024];
+      const ssize_t n = H5Iget_name(scale, buf, sizeof buf);
+      if (n > 0) *static_cast<std::string*>(data) = std::string(buf, static_cast<std::size_t>(std::min<ssize_t>(n, 1023)));
+      return 1;
+    };
+    if (H5DSget_num_scales(d.id(), k) > 0) H5DSiterate_scales(d.id(), k, nullptr, visit, &name);
+    H5Eclear2(H5E_DEFAULT);
+    out.push_back(name);
+  }
+  return out;
 }
 
 std::vector<hsize_t> dims(const Dataset& d) {

@@ -147,6 +147,14 @@ Dataset create_dataset(const Object& parent, const std::string& name, hid_t file
 Dataset open_dataset(const Object& parent, const std::string& name);
 std::vector<hsize_t> dims(const Dataset& d);
 
+// ---- dimension scales (HDF5 high-level H5DS; collective on parallel files)
+// Marks a 1-D dataset as a dimension scale named `name`.
+void make_scale(const Dataset& d, const std::string& name);
+// Attaches `scale` to dimension `dim` of `d`.
+void attach_scale(const Dataset& d, const Dataset& scale, unsigned dim);
+// Serial: the path of the first scale attached to each dimension ("" none).
+std::vector<std::string> scale_names(const Dataset& d);
+
 // ---- datatypes
 // Fixed-length string of `size` bytes, NUL-terminated, UTF-8.
 Datatype fixed_string_type(std::size_t size);

@@ -23,7 +23,7 @@ namespace {
 // io/result_file.cpp taught to write and read it); this assertion fires on
 // the reference platform when PointRecord changes size, as a reminder.
 #if defined(__GLIBCXX__) && defined(__x86_64__) && defined(__linux__)
-static_assert(sizeof(PointRecord) == 1080,
+static_assert(sizeof(PointRecord) == 592,
               "PointRecord changed: update visit() in io/journal.cpp (and bump kJournalVersion), "
               "io/result_file.cpp (writer and read_results) and docs/layout.md, then this size");
 #endif
@@ -58,6 +58,14 @@ class Out {
   void operator()(const std::vector<std::int64_t>& v) {
     u64(v.size());
     for (std::int64_t x : v) (*this)(x);
+  }
+  void operator()(const std::vector<FieldValue>& v) {
+    u64(v.size());
+    for (const FieldValue& x : v) {
+      (*this)(x.shape);
+      (*this)(x.f);
+      (*this)(x.i);
+    }
   }
   std::string& str() { return b_; }
 
@@ -103,6 +111,16 @@ class In {
   }
   void operator()(std::vector<double>& v) { vec(v); }
   void operator()(std::vector<std::int64_t>& v) { vec(v); }
+  void operator()(std::vector<FieldValue>& v) {
+    const std::uint64_t n = u64();
+    if (!ok_ || n > left() / 24) return fail();  // three counts per value
+    v.resize(static_cast<std::size_t>(n));
+    for (FieldValue& x : v) {
+      (*this)(x.shape);
+      (*this)(x.f);
+      (*this)(x.i);
+    }
+  }
 
  private:
   unsigned char byte(std::size_t i) const { return static_cast<unsigned char>(p_[i]); }
@@ -121,7 +139,7 @@ class In {
   bool ok_ = true;
 };
 
-// The payload field order (format version 3). Shared by both directions.
+// The payload field order (format version 4). Shared by both directions.
 template <class A, class R>
 void visit(A& a, R& r) {
   a(r.index);
@@ -168,37 +186,18 @@ void visit(A& a, R& r) {
   a(r.ehrenfest_time);
   a(r.saturation_lyapunov);
   a(r.saturation_lightcone);
-  // /entanglement (format version 2)
-  a(r.ent_wall_time);
-  a(r.ent_cuts);
-  a(r.ent_lyapunov_rate);
-  a(r.ent_region_rate);  // format version 3
-  a(r.gauss_entropy);
-  a(r.gauss_radius);
-  a(r.gauss_failures);
-  a(r.gauss_slope);
-  a(r.gauss_slope_over_lyapunov);
-  a(r.gauss_slope_over_region_rate);  // format version 3
-  a(r.gauss_saturation_value);
-  a(r.gauss_saturation_time);
-  a(r.stab_entropy);
-  a(r.stab_slope);
-  a(r.stab_slope_over_lyapunov);
-  a(r.stab_slope_over_lightcone);
-  a(r.stab_saturation_value);
-  a(r.stab_saturation_time);
-  a(r.stab_cap);
-  a(r.stab_lightcone_rate);
-  a(r.stab_violations);
-  a(r.stab_profile);
+  // the diagnostics' values, one per field of the run's schema (format version 4)
+  a(r.fields);
 }
 
-std::string header_bytes(const std::string& config_hash, std::int64_t total) {
+std::string header_bytes(const std::string& config_hash, std::int64_t total, const std::string& schema_hash) {
   Out o;
   o.bytes(kMagic, sizeof kMagic);
   o.u32(kJournalVersion);
   o.u32(static_cast<std::uint32_t>(config_hash.size()));
   o.bytes(config_hash.data(), config_hash.size());
+  o.u32(static_cast<std::uint32_t>(schema_hash.size()));
+  o.bytes(schema_hash.data(), schema_hash.size());
   o(total);
   const std::uint64_t h = fnv1a64_bytes(o.str().data(), o.str().size());
   o.u64(h);
@@ -292,19 +291,27 @@ JournalContents read_journal(const std::string& path) {
     fail(what, path, "unsupported journal format version " + std::to_string(c.version) +
                          " (this toral reads version " + std::to_string(kJournalVersion) + ")");
   if (n > kMaxHashBytes) fail(what, path, "bad journal header (config hash of " + std::to_string(n) + " bytes)");
-  const std::uint64_t hsize = sizeof fixed + n + 16;
-  if (size < hsize) fail(what, path, "bad journal header (truncated)");
-  std::string rest(n + 16, '\0');
+  if (size < sizeof fixed + n + 4) fail(what, path, "bad journal header (truncated)");
+  std::string rest(n + 4, '\0');
   if (!f.read(rest.data(), static_cast<std::streamsize>(rest.size())))
+    fail(what, path, "bad journal header (read failed)");
+  std::uint32_t m = 0;
+  for (int i = 0; i < 4; ++i) m |= static_cast<std::uint32_t>(static_cast<unsigned char>(rest[n + i])) << (8 * i);
+  if (m > kMaxHashBytes) fail(what, path, "bad journal header (schema hash of " + std::to_string(m) + " bytes)");
+  const std::uint64_t hsize = sizeof fixed + n + 4 + m + 16;
+  if (size < hsize) fail(what, path, "bad journal header (truncated)");
+  rest.resize(n + 4 + m + 16);
+  if (!f.read(rest.data() + n + 4, static_cast<std::streamsize>(m + 16)))
     fail(what, path, "bad journal header (read failed)");
   {
     std::string all(fixed, sizeof fixed);
-    all += rest.substr(0, n + 8);
-    if (fnv1a64_bytes(all.data(), all.size()) != le64(rest.data() + n + 8))
+    all += rest.substr(0, n + 4 + m + 8);
+    if (fnv1a64_bytes(all.data(), all.size()) != le64(rest.data() + n + 4 + m + 8))
       fail(what, path, "bad journal header (checksum mismatch)");
   }
   c.config_hash = rest.substr(0, n);
-  c.total_points = static_cast<std::int64_t>(le64(rest.data() + n));
+  c.schema_hash = rest.substr(n + 4, m);
+  c.total_points = static_cast<std::int64_t>(le64(rest.data() + n + 4 + m));
   c.header_bytes = c.valid_bytes = hsize;
 
   // ---- frames
@@ -372,9 +379,10 @@ void JournalWriter::reset() noexcept {
 }
 
 void JournalWriter::open_new(const std::string& path, const std::string& config_hash,
-                             std::int64_t total_points) {
+                             std::int64_t total_points, const std::string& schema_hash) {
   const std::string what = "journal open_new";
   if (config_hash.size() > kMaxHashBytes) fail(what, path, "config hash longer than 4096 bytes");
+  if (schema_hash.size() > kMaxHashBytes) fail(what, path, "schema hash longer than 4096 bytes");
   reset();
   // The header goes to a sibling temporary that replaces `path` atomically:
   // a crash leaves either the old file or a journal with a whole header.
@@ -384,7 +392,7 @@ void JournalWriter::open_new(const std::string& path, const std::string& config_
   const std::string tmp = t.str();
   const int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_EXCL | O_APPEND | O_CLOEXEC, 0644);
   if (fd < 0) fail_errno(what, tmp, "open");
-  const std::string h = header_bytes(config_hash, total_points);
+  const std::string h = header_bytes(config_hash, total_points, schema_hash);
   if (!write_once(fd, h) || ::fdatasync(fd) != 0) {
     const int e = errno;
     ::close(fd);

@@ -5,7 +5,8 @@
 // (docs/layout.md, "The resume journal"); it is not a contract for users.
 //
 //   header: "TORALJNL" | u32 format version | u32 n | n bytes config hash |
-//           i64 total points | u64 FNV-1a-64 of all header bytes before it
+//           u32 m | m bytes schema hash | i64 total points |
+//           u64 FNV-1a-64 of all header bytes before it
 //   frame:  u64 payload length | payload | u64 FNV-1a-64 of the payload
 //
 // All integers are little-endian; doubles are stored as their raw IEEE-754
@@ -29,7 +30,10 @@ namespace toral {
 // 3: /chaos/zero_count and /chaos/zero_certified; /bounds cuts per ell and
 //    lightcone_rate per ell and N; the region rate (ent_region_rate,
 //    gauss_slope_over_region_rate).
-constexpr std::uint32_t kJournalVersion = 3;
+// 4: the diagnostics' values as one list of (shape, float values, integer
+//    values) per declared field (PointRecord::fields); the header carries
+//    the schema hash.
+constexpr std::uint32_t kJournalVersion = 4;
 
 // `result_path + ".journal"`.
 std::string journal_path(const std::string& result_path);
@@ -37,6 +41,7 @@ std::string journal_path(const std::string& result_path);
 struct JournalHeader {
   std::uint32_t version = kJournalVersion;
   std::string config_hash;        // RunMeta::config_hash of the run
+  std::string schema_hash;        // Schema::hash() of the run's diagnostics ("" when none)
   std::int64_t total_points = 0;  // points of the whole run
 };
 
@@ -75,7 +80,8 @@ class JournalWriter {
 
   // Creates `path` (replacing an existing file) and writes the header, then
   // fdatasync()s it so that a journal either has a whole header or none.
-  void open_new(const std::string& path, const std::string& config_hash, std::int64_t total_points);
+  void open_new(const std::string& path, const std::string& config_hash, std::int64_t total_points,
+                const std::string& schema_hash = {});
   // Opens an existing journal for appending: reads it (read_journal), cuts a
   // torn or corrupt tail off (ftruncate to valid_bytes, then fdatasync), and
   // returns what it read. The caller compares header.config_hash /

@@ -7,6 +7,8 @@
 #include <string>
 #include <vector>
 
+#include "schema.hpp"
+
 namespace toral {
 
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
@@ -20,7 +22,7 @@ enum class PointStatus : std::int32_t {
   NoMethod = 4,       // no spectrum method applies to this point
   InternalError = 5,  // anything else; see the message
   Pending = 6,        // not computed yet (checkpoint of an unfinished run)
-  EntanglementFailed = 7,  // an exact entropy kernel failed or missed its certified radius
+  DiagnosticFailed = 7,  // a diagnostic failed (e.g. an exact entropy kernel, or a missed certified radius)
   Inaccurate = 8,     // results kept, but an accuracy estimate is not finite or exceeds
                       // spectrum.max_error, or the numbers failed a consistency check
 };
@@ -35,26 +37,6 @@ enum class SolverCode : std::int32_t {
   Tangent = 5,       // QR (Benettin) method over T periods
 };
 
-// Coordinates of the exact entanglement dynamics (/entanglement), shared by
-// all points of a run. Regions are fixed site sets; a region that does not fit
-// a point's lattice is NaN (cuts -1) there.
-struct EntanglementAxes {
-  bool present = false;                    // whether /entanglement is written
-  std::int64_t periods = 0;                // T: /entanglement/t = 0..T
-  std::vector<std::int64_t> region_size;   // |A| per region
-  std::vector<std::int64_t> region_sites;  // regions x max |A|, row-major, -1 padded
-  bool gaussian = false;                   // whether /entanglement/gaussian is written
-  std::vector<std::int64_t> local_dims;    // stabilizer N (empty: no /entanglement/stabilizer)
-  std::int64_t profile_stride = 0;         // 0: no stabilizer profile
-  std::int64_t profile_sites = 0;          // Lmax + 1: last axis of the profile (cuts x = 0..Lmax)
-  std::size_t regions() const { return region_size.size(); }
-  std::size_t times() const { return static_cast<std::size_t>(periods + 1); }
-  std::size_t profile_times() const {
-    return profile_stride > 0 ? static_cast<std::size_t>(periods / profile_stride + 1) : 0;
-  }
-  bool operator==(const EntanglementAxes&) const = default;
-};
-
 // Coordinates shared by all points of a run (written once).
 struct RunAxes {
   std::vector<std::string> param_names;  // point parameters, /points/<name>
@@ -64,7 +46,7 @@ struct RunAxes {
   std::vector<std::int64_t> local_dims;    // /bounds/local_dim (N)
   int hist_bins = 0;
   bool bulk_limit = false;  // whether /limit/ is written
-  EntanglementAxes entanglement;  // /entanglement/ (docs/entanglement.md)
+  Schema schema;  // the diagnostics' groups, coordinates and per-point fields (io/schema.hpp)
 };
 
 // Run-level metadata, written as root attributes.
@@ -122,40 +104,16 @@ struct PointRecord {
   std::vector<double> saturation_lyapunov;  // [ell][N] cap / Lambda_ell: a generic region's time (not a bound)
   std::vector<double> saturation_lightcone; // [ell][N] cap / lightcone_rate
 
-  // /entanglement: exact entanglement dynamics (docs/entanglement.md). Every
-  // vector is empty when not computed, else of the full length, row-major
-  // over ([N], region, t) with N = EntanglementAxes::local_dims, region over
-  // its regions and t = 0..T; NaN (int64: -1) where a region does not fit.
-  double ent_wall_time = kNaN;                   // seconds in the entanglement kernels
-  std::vector<std::int64_t> ent_cuts;            // [region] boundary cuts c of A at this point
-  std::vector<double> ent_lyapunov_rate;         // [region] Lambda_|A| (sum of the 2 min(|A|, L-|A|) top exponents):
-                                                 //   the asymptotic rate of a generic region, not a bound
-  std::vector<double> ent_region_rate;           // [region] late rate of ln vol(P_A S^t) (kernels/region_rate.hpp):
-                                                 //   the rate this region's Gaussian entropy reaches
-  std::vector<double> gauss_entropy;             // [region][t] midpoint of S_A(t), nats
-  std::vector<double> gauss_radius;              // [region][t] certified radius
-  std::vector<std::int64_t> gauss_failures;      // [region] t's whose radius missed the target
-  std::vector<double> gauss_slope;               // [region] late-time least-squares slope
-  std::vector<double> gauss_slope_over_lyapunov; // [region] rate_ratio(slope, Lambda_|A|)
-  std::vector<double> gauss_slope_over_region_rate;  // [region] rate_ratio(slope, region rate)
-  std::vector<double> gauss_saturation_value;    // [region] max_t S_A(t)
-  std::vector<double> gauss_saturation_time;     // [region] first t with S_A(t) >= 0.99 max
-  std::vector<double> stab_entropy;              // [N][region][t]
-  std::vector<double> stab_slope;                // [N][region]
-  std::vector<double> stab_slope_over_lyapunov;  // [N][region]
-  std::vector<double> stab_slope_over_lightcone; // [N][region]
-  std::vector<double> stab_saturation_value;     // [N][region]
-  std::vector<double> stab_saturation_time;      // [N][region]
-  std::vector<double> stab_cap;                  // [N][region] min(|A|, L-|A|) ln N
-  std::vector<double> stab_lightcone_rate;       // [N][region] 2 c ln N
-  std::vector<std::int64_t> stab_violations;     // [N][region] t's above the cap or the light cone
-  std::vector<double> stab_profile;              // [N][k][x]: S([0, x)) at t = k*stride, x = 0..L (this point's L)
+  // The diagnostics' per-point values (driver/diagnostic.hpp), one per field
+  // of RunAxes::schema in its order; empty: none computed (all padding).
+  std::vector<FieldValue> fields;
 };
 
 // Ensemble statistics over points that differ only in their seed (/stats).
 struct StatsColumn {
   std::string name;                 // e.g. "lambda_max", "lyapunov_rate"
-  std::vector<std::uint64_t> inner;  // trailing shape: {}, {n_ell}, {n_N} or {n_ell, n_N}
+  std::vector<std::uint64_t> inner;  // trailing shape: {}, {n_ell}, {n_N}, {n_ell, n_N}, or a field's inner shape
+  std::vector<std::string> inner_dims;  // the axis (absolute path) of each trailing dim, e.g. /bounds/region_size
   std::vector<double> mean, std, sem, median;  // groups x prod(inner), row-major
   std::string units, meaning;
 };

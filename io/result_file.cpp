@@ -11,6 +11,8 @@
 #include <ctime>
 #include <filesystem>
 #include <limits>
+#include <map>
+#include <set>
 #include <numeric>
 #include <random>
 #include <sstream>
@@ -167,47 +169,6 @@ std::pair<int, std::string> publish(const std::string& tmp, const std::string& p
 // The row a record goes to.
 std::int64_t row_of(const PointRecord& r) { return r.row == -1 ? r.index : r.row; }
 
-// The /entanglement fields of one record against the axes: each vector empty
-// or of its full length (all empty when the run has no /entanglement).
-std::string validate_entanglement(const PointRecord& r, const EntanglementAxes& e, const std::string& at) {
-  const std::size_t nr = e.present ? e.regions() : 0, nt = e.present ? e.times() : 0;
-  const std::size_t ng = e.present && e.gaussian ? 1 : 0, nn = e.present ? e.local_dims.size() : 0;
-  auto len = [&](const auto& v, std::size_t want, const char* name) -> std::string {
-    if (v.empty() || v.size() == want) return {};
-    return at + ": " + name + " has " + std::to_string(v.size()) + " values, expected " +
-           std::to_string(want) + " (or none)";
-  };
-  for (const std::string& m :
-       {len(r.ent_cuts, nr, "ent_cuts"), len(r.ent_lyapunov_rate, nr, "ent_lyapunov_rate"),
-        len(r.ent_region_rate, nr, "ent_region_rate"),
-        len(r.gauss_entropy, ng * nr * nt, "gauss_entropy"),
-        len(r.gauss_radius, ng * nr * nt, "gauss_radius"),
-        len(r.gauss_failures, ng * nr, "gauss_failures"), len(r.gauss_slope, ng * nr, "gauss_slope"),
-        len(r.gauss_slope_over_lyapunov, ng * nr, "gauss_slope_over_lyapunov"),
-        len(r.gauss_slope_over_region_rate, ng * nr, "gauss_slope_over_region_rate"),
-        len(r.gauss_saturation_value, ng * nr, "gauss_saturation_value"),
-        len(r.gauss_saturation_time, ng * nr, "gauss_saturation_time"),
-        len(r.stab_entropy, nn * nr * nt, "stab_entropy"), len(r.stab_slope, nn * nr, "stab_slope"),
-        len(r.stab_slope_over_lyapunov, nn * nr, "stab_slope_over_lyapunov"),
-        len(r.stab_slope_over_lightcone, nn * nr, "stab_slope_over_lightcone"),
-        len(r.stab_saturation_value, nn * nr, "stab_saturation_value"),
-        len(r.stab_saturation_time, nn * nr, "stab_saturation_time"), len(r.stab_cap, nn * nr, "stab_cap"),
-        len(r.stab_lightcone_rate, nn * nr, "stab_lightcone_rate"),
-        len(r.stab_violations, nn * nr, "stab_violations")})
-    if (!m.empty()) return m;
-  if (!r.stab_profile.empty()) {
-    const std::size_t nk = e.present ? e.profile_times() : 0, block = nn * nk;
-    const std::size_t W = static_cast<std::size_t>(std::max<std::int64_t>(e.profile_sites, 0));
-    if (block == 0 || r.stab_profile.size() % block != 0 || r.stab_profile.size() / block > W)
-      return at + ": stab_profile has " + std::to_string(r.stab_profile.size()) +
-             " values, expected local_dims x profile times x (L + 1) = " + std::to_string(nn) + " x " +
-             std::to_string(nk) + " x (at most " + std::to_string(W) + ") (or none)";
-  }
-  if (!std::isnan(r.ent_wall_time) && !e.present)
-    return at + ": ent_wall_time is set but the run has no /entanglement";
-  return {};
-}
-
 // Rank-local validation of the records (sorted by row) against the axes.
 // `whole`: a whole-run file, where row must equal index.
 std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes& ax,
@@ -256,8 +217,13 @@ std::string validate(const std::vector<const PointRecord*>& recs, const RunAxes&
     if (!r.cuts.empty() && r.cuts.size() != nl)
       return at + ": cuts has " + std::to_string(r.cuts.size()) + " values, expected " + std::to_string(nl) +
              " (or none)";
-    const std::string e = validate_entanglement(r, ax.entanglement, at);
-    if (!e.empty()) return e;
+    if (!r.fields.empty() && r.fields.size() != ax.schema.fields.size())
+      return at + ": " + std::to_string(r.fields.size()) + " diagnostic values for " +
+             std::to_string(ax.schema.fields.size()) + " declared fields (expected as many, or none)";
+    for (std::size_t k = 0; k < r.fields.size(); ++k) {
+      const std::string e = check_value(ax.schema, k, r.fields[k]);
+      if (!e.empty()) return at + ": " + e;
+    }
   }
   return {};
 }
@@ -318,6 +284,9 @@ std::string validate_stats(const EnsembleStats& st) {
       return at + "name '" + *d + "' used twice (parameters, \"count\" and columns share /stats)";
   }
   for (const auto& c : st.columns) {
+    if (!c.inner_dims.empty() && c.inner_dims.size() != c.inner.size())
+      return at + "column '" + c.name + "' names " + std::to_string(c.inner_dims.size()) + " axes for " +
+             std::to_string(c.inner.size()) + " trailing dims";
     std::size_t w = 1;
     for (auto x : c.inner) w *= static_cast<std::size_t>(x);
     const std::size_t want = G * w;
@@ -351,6 +320,7 @@ bool bcast_stats(MPI_Comm comm, const EnsembleStats* in, EnsembleStats& st) {
     bcast(comm, c.median);
     bcast(comm, c.units);
     bcast(comm, c.meaning);
+    bcast(comm, c.inner_dims);
   }
   return true;
 }
@@ -361,7 +331,12 @@ struct Ctx {
   const h5::Object* parent = nullptr;
   std::vector<std::int64_t> rows;  // this rank's global rows, ascending
   std::int64_t total = 0;
+  std::vector<std::string>* made = nullptr;  // per-point datasets created, for the dimension scales
 };
+
+std::string join(const std::string& parent, const std::string& name) {
+  return parent == "/" || parent.empty() ? "/" + name : parent + "/" + name;
+}
 
 void describe(const h5::Object& o, const std::string& units, const std::string& meaning) {
   h5::set_attr(o, "units", units);
@@ -380,6 +355,7 @@ void put(const Ctx& c, const std::string& name, hid_t file_type, hid_t mem_type,
   describe(ds, units, meaning);
   h5::write_rows(ds, c.rows, buf.data(), mem_type);
   ds.close();
+  if (c.made) c.made->push_back(join(c.parent->path(), name));
 }
 
 template <class F>
@@ -465,154 +441,147 @@ void put_i64_rows(const Ctx& c, const std::string& name, const std::vector<hsize
   put(c, name, H5T_STD_I64LE, H5T_NATIVE_INT64, inner, buf, units, meaning);
 }
 
-void write_entanglement(const h5::Group& root, Ctx c, bool writer, const EntanglementAxes& e,
-                        const std::vector<const PointRecord*>& recs) {
-  const std::size_t nr = e.regions(), nt = e.times(), nn = e.local_dims.size();
-  std::size_t width = 0;
-  for (auto n : e.region_size) width = std::max(width, static_cast<std::size_t>(n));
-  const hsize_t hr = nr, ht = nt, hn = nn;
-  h5::Group g = h5::create_group(root, "entanglement");
-  c.parent = &g;
-  h5::set_attr(g, "meaning",
-               "exact entanglement dynamics S_A(t), t = 0..T, of fixed regions A from a product "
-               "initial state (docs/entanglement.md); NaN (int64: -1) where a region does not fit "
-               "the point's lattice or nothing was computed");
-  h5::set_attr(g, "slope_window",
-               "least-squares slope of S_A(t), and of ln vol(P_A S^t) for region_rate, over t = t0..T, "
-               "t0 = min(ceil(3T/4), T-1); NaN for T = 0");
-  h5::set_attr(g, "saturation_fraction", 0.99);
-  h5::set_attr(g, "violation_tolerance", 1e-9);
-  {
-    std::vector<std::int64_t> t(nt);
-    std::iota(t.begin(), t.end(), std::int64_t{0});
-    put_coord(g, writer, "t", t, "periods", "time t of the last axis of every entropy curve: 0..T");
+void set_attrs(const h5::Object& o, const std::vector<AttrDecl>& attrs) {
+  for (const auto& a : attrs) {
+    if (a.kind == AttrDecl::Kind::Text) h5::set_attr(o, a.name, a.text);
+    else if (a.kind == AttrDecl::Kind::Int) h5::set_attr(o, a.name, a.i);
+    else h5::set_attr(o, a.name, a.d);
   }
-  put_coord(g, writer, "region_size", e.region_size, "sites",
-            "|A|, the number of sites of each region (the region axis)");
-  put_whole_i64(g, writer, "region_sites", {hr, static_cast<hsize_t>(width)}, e.region_sites, "1",
-                "sites of each region (row), ascending; -1 padded to the largest region");
-  put_f64(c, "wall_time", {}, column(recs, [](const PointRecord& r) { return r.ent_wall_time; }), "s",
-          "wall-clock time spent in the exact entanglement kernels (part of /points/wall_time)");
-  put_i64_rows(c, "cuts", {hr},
-               irows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_cuts; }), "1",
-               "boundary cuts c of the region at the point: bonds with one end inside A; -1 where "
-               "the region does not fit");
-  put_f64(c, "lyapunov_rate", {hr},
-          rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_lyapunov_rate; }),
-          "nats/period",
-          "Lambda_|A|, the asymptotic entropy growth rate of a generic region of |A| sites: sum of the "
-          "2 min(|A|, L-|A|) largest exponents of the point (as /bounds/lyapunov_rate); not a bound, and "
-          "not the rate of every region (region_rate); NaN where fewer are known and for |A| = L");
-  put_f64(c, "region_rate", {hr},
-          rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.ent_region_rate; }),
-          "nats/period",
-          "the growth rate this region's Gaussian entropy reaches: late-time least-squares slope (window "
-          "slope_window) of ln vol(P_A S^t), the exact log-volume of the 2 min(|A|, L-|A|)-site rows of "
-          "S^t (kernels/region_rate.hpp); equals lyapunov_rate for a generic region, less for a region "
-          "in a special position; a rate, not a bound; NaN for |A| = L and for circuits redrawn every "
-          "period");
-  if (e.gaussian) {
-    h5::Group gg = h5::create_group(g, "gaussian");
-    Ctx cg = c;
-    cg.parent = &gg;
-    h5::set_attr(gg, "meaning",
-                 "certified entropies of Gaussian states on R^2L under x -> S x (kernels/"
-                 "gaussian_exact.hpp); the exact value lies within entropy +- radius");
-    put_f64(cg, "entropy", {hr, ht},
-            rows_of(recs, nr * nt, [](const PointRecord& r) -> const auto& { return r.gauss_entropy; }),
-            "nats", "midpoint of the certified von Neumann entropy S_A(t), [region][t]");
-    put_f64(cg, "radius", {hr, ht},
-            rows_of(recs, nr * nt, [](const PointRecord& r) -> const auto& { return r.gauss_radius; }),
-            "nats", "certified radius: |S_A(t) - entropy| <= radius, [region][t]");
-    put_i64_rows(cg, "failures", {hr},
-                 irows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_failures; }),
-                 "1", "number of t whose radius missed the target (then the point's status is "
-                      "entanglement_failed); -1 not computed");
-    put_f64(cg, "slope", {hr},
-            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope; }),
-            "nats/period", "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
-    put_f64(cg, "slope_over_lyapunov", {hr},
-            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope_over_lyapunov; }),
-            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate) by the rule for ratios over rates "
-                 "(x/0 = +-inf for x != 0, 0/0 = NaN); tends to 1 for a generic region of a chaotic "
-                 "circuit, below 1 for a region in a special position");
-    put_f64(cg, "slope_over_region_rate", {hr},
-            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_slope_over_region_rate; }),
-            "1", "slope / region_rate (/entanglement/region_rate), same window, by the rule for ratios over "
-                 "rates; tends to 1 for every region (S_A(t) - ln vol(P_A S^t) stays bounded)");
-    put_f64(cg, "saturation_value", {hr},
-            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_saturation_value; }),
-            "nats", "max over t of S_A(t)");
-    put_f64(cg, "saturation_time", {hr},
-            rows_of(recs, nr, [](const PointRecord& r) -> const auto& { return r.gauss_saturation_time; }),
-            "periods", "first t with S_A(t) >= 0.99 saturation_value");
-    gg.close();
-  }
-  if (nn > 0) {
-    h5::Group gs = h5::create_group(g, "stabilizer");
-    Ctx cs = c;
-    cs.parent = &gs;
-    h5::set_attr(gs, "meaning",
-                 "exact entropies of stabilizer states of L qudits of dimension N under the circuit "
-                 "read as a Clifford circuit mod N (kernels/stabilizer.hpp), [N][region][t]");
-    put_coord(gs, writer, "local_dim", e.local_dims, "1", "local dimension N: axis 1 of every per-point dataset");
-    const hsize_t nnr = nn * nr;
-    put_f64(cs, "entropy", {hn, hr, ht},
-            rows_of(recs, nnr * nt, [](const PointRecord& r) -> const auto& { return r.stab_entropy; }),
-            "nats", "entanglement entropy S_A(t), exact (a sum of integer multiples of ln p)");
-    put_f64(cs, "slope", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope; }), "nats/period",
-            "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)");
-    put_f64(cs, "slope_over_lyapunov", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lyapunov; }),
-            "1", "slope / Lambda_|A| (/entanglement/lyapunov_rate), by the rule for ratios over rates");
-    put_f64(cs, "slope_over_lightcone", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_slope_over_lightcone; }),
-            "1", "slope / lightcone_rate (at most 1: the light cone is a bound)");
-    put_f64(cs, "saturation_value", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_saturation_value; }),
-            "nats", "max over t of S_A(t)");
-    put_f64(cs, "saturation_time", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_saturation_time; }),
-            "periods", "first t with S_A(t) >= 0.99 saturation_value");
-    put_f64(cs, "cap", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_cap; }), "nats",
-            "Hilbert-space cap min(|A|, L-|A|) ln N: a bound on S_A (theorem)");
-    put_f64(cs, "lightcone_rate", {hn, hr},
-            rows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_lightcone_rate; }),
-            "nats/period", "light-cone rate 2 c ln N of the region's c cuts: a bound on the growth of S_A "
-                           "per period (theorem)");
-    put_i64_rows(cs, "violations", {hn, hr},
-                 irows_of(recs, nnr, [](const PointRecord& r) -> const auto& { return r.stab_violations; }),
-                 "1", "number of t with S_A(t) > cap + 1e-9 or S_A(t) - S_A(0) > lightcone_rate t + 1e-9; "
-                      "0 by theorem; -1 not computed");
-    if (e.profile_stride > 0) {
-      const std::size_t nk = e.profile_times(), W = static_cast<std::size_t>(e.profile_sites);
-      std::vector<std::int64_t> tk(nk);
-      for (std::size_t k = 0; k < nk; ++k) tk[k] = static_cast<std::int64_t>(k) * e.profile_stride;
-      put_coord(gs, writer, "profile_t", tk, "periods", "time of axis 2 of profile: k * stride");
-      std::vector<double> buf(recs.size() * nn * nk * W, kNaN);
-      for (std::size_t i = 0; i < recs.size(); ++i) {
-        const std::vector<double>& x = recs[i]->stab_profile;
-        if (x.empty()) continue;
-        const std::size_t w = x.size() / (nn * nk);
-        for (std::size_t b = 0; b < nn * nk; ++b)
-          std::copy_n(x.begin() + static_cast<std::ptrdiff_t>(b * w), w,
-                      buf.begin() + static_cast<std::ptrdiff_t>((i * nn * nk + b) * W));
-      }
-      put_f64(cs, "profile", {hn, static_cast<hsize_t>(nk), static_cast<hsize_t>(W)}, buf, "nats",
-              "S([0, x)) of the site prefix [0, x) at t = profile_t[k], [N][k][x], x = 0..L; NaN "
-              "padded beyond the point's L");
-      h5::Dataset ds = h5::open_dataset(gs, "profile");
-      h5::set_attr(ds, "stride", e.profile_stride);
-      ds.close();
-    }
-    gs.close();
-  }
-  g.close();
 }
 
-void write_stats(const h5::Group& root, bool writer, const EnsembleStats& st) {
+std::string parent_path(const std::string& p) {
+  const auto k = p.rfind('/');
+  return k == 0 ? std::string("/") : p.substr(0, k);
+}
+std::string base_name(const std::string& p) { return p.substr(p.rfind('/') + 1); }
+
+// Opens `path` (a group or "/") for the duration of one call.
+h5::Group group_at(const h5::File& f, const std::string& path) {
+  h5::Group g = h5::root(f);
+  if (path == "/") return g;
+  std::size_t i = 1;
+  while (i <= path.size()) {
+    std::size_t j = path.find('/', i);
+    if (j == std::string::npos) j = path.size();
+    g = h5::open_group(g, path.substr(i, j - i));
+    i = j + 1;
+  }
+  return g;
+}
+
+// Attaches the scales `dims` (absolute paths) to the dimensions of the
+// dataset at `path`, in order; a dataset of another rank is an internal error.
+void attach_dims(const h5::File& f, const std::string& path, const std::vector<std::string>& dims) {
+  h5::Group g = group_at(f, parent_path(path));
+  h5::Dataset d = h5::open_dataset(g, base_name(path));
+  if (h5::dims(d).size() != dims.size())
+    throw ResultFileError("write_results: internal: " + path + " has " + std::to_string(h5::dims(d).size()) +
+                          " dimensions for " + std::to_string(dims.size()) + " scales");
+  for (unsigned k = 0; k < dims.size(); ++k) {
+    if (dims[k] == path) continue;  // a scale is its own dimension
+    h5::Group sg = group_at(f, parent_path(dims[k]));
+    h5::Dataset s = h5::open_dataset(sg, base_name(dims[k]));
+    h5::attach_scale(d, s, k);
+  }
+}
+
+// The diagnostics' groups, coordinates and per-point fields, as declared in
+// the run's schema (io/schema.hpp): the one writer for every diagnostic.
+void write_diagnostics(const h5::File& f, Ctx c, bool writer, const Schema& s,
+                       const std::vector<const PointRecord*>& recs) {
+  for (const auto& gd : s.groups) {
+    h5::Group parent = group_at(f, parent_path(gd.path));
+    h5::Group g = h5::create_group(parent, base_name(gd.path));
+    h5::set_attr(g, "meaning", gd.meaning);
+    set_attrs(g, gd.attrs);
+  }
+  for (const auto& cd : s.coords) {
+    h5::Group parent = group_at(f, parent_path(cd.path));
+    std::vector<hsize_t> shape;
+    for (const auto& d : cd.dims) shape.push_back(d == cd.path ? cd.size() : s.axis(d)->size());
+    const bool fl = cd.type == Elem::F64;
+    h5::Dataset ds = h5::create_dataset(parent, base_name(cd.path), fl ? H5T_IEEE_F64LE : H5T_STD_I64LE, shape, fl);
+    describe(ds, cd.units, cd.meaning);
+    set_attrs(ds, cd.attrs);
+    if (fl) h5::write_all(ds, writer, cd.f.data(), H5T_NATIVE_DOUBLE);
+    else h5::write_all(ds, writer, cd.i.data(), H5T_NATIVE_INT64);
+    if (cd.is_axis()) h5::make_scale(ds, base_name(cd.path));
+  }
+  for (const auto& cd : s.coords)
+    if (!cd.is_axis()) attach_dims(f, cd.path, cd.dims);
+  for (std::size_t k = 0; k < s.fields.size(); ++k) {
+    const FieldDecl& fd = s.fields[k];
+    const std::vector<std::int64_t> inner = s.inner_shape(k);
+    std::size_t n = 1;
+    for (auto x : inner) n *= static_cast<std::size_t>(x);
+    std::vector<hsize_t> hin(inner.begin(), inner.end());
+    std::vector<double> bf, rf;
+    std::vector<std::int64_t> bi, ri;
+    const bool fl = fd.type == Elem::F64;
+    if (fl) bf.reserve(recs.size() * n);
+    else bi.reserve(recs.size() * n);
+    static const FieldValue none;
+    for (const auto* r : recs) {
+      pad_value(s, k, k < r->fields.size() ? r->fields[k] : none, rf, ri);
+      if (fl) bf.insert(bf.end(), rf.begin(), rf.end());
+      else bi.insert(bi.end(), ri.begin(), ri.end());
+    }
+    h5::Group parent = group_at(f, parent_path(fd.path));
+    Ctx cf = c;
+    cf.parent = &parent;
+    cf.made = nullptr;
+    if (fl) put_f64(cf, base_name(fd.path), hin, bf, fd.units, fd.meaning);
+    else put_i64_rows(cf, base_name(fd.path), hin, bi, fd.units, fd.meaning);
+    if (!fd.attrs.empty()) {
+      h5::Dataset ds = h5::open_dataset(parent, base_name(fd.path));
+      set_attrs(ds, fd.attrs);
+    }
+    std::vector<std::string> dims{"/point"};
+    dims.insert(dims.end(), fd.dims.begin(), fd.dims.end());
+    attach_dims(f, fd.path, dims);
+  }
+}
+
+// The dimensions of the per-point datasets outside the diagnostics, after
+// the point axis (docs/layout.md).
+std::vector<std::string> core_dims(const std::string& p) {
+  if (p == "/chaos/exponents" || p == "/chaos/exponent_error") return {"/chaos/exponent"};
+  for (const std::string g : {"/chaos", "/limit"}) {
+    if (p == g + "/histogram/counts") return {g + "/histogram/bin"};
+    if (p == g + "/histogram/edges") return {g + "/histogram/edge"};
+  }
+  if (p == "/bounds/cuts" || p == "/bounds/lyapunov_rate") return {"/bounds/region_size"};
+  if (p == "/bounds/ehrenfest_time") return {"/bounds/local_dim"};
+  if (p.rfind("/bounds/", 0) == 0) return {"/bounds/region_size", "/bounds/local_dim"};
+  return {};
+}
+
+// An index axis 0..n-1 (a dimension scale) at group/name.
+void put_index_axis(const h5::File& f, bool writer, const std::string& group, const std::string& name,
+                    std::size_t n, const std::string& meaning) {
+  h5::Group g = group_at(f, group);
+  std::vector<std::int64_t> v(n);
+  std::iota(v.begin(), v.end(), std::int64_t{0});
+  h5::Dataset ds = h5::create_dataset(g, name, H5T_STD_I64LE, {n});
+  describe(ds, "1", meaning);
+  h5::write_all(ds, writer, v.data(), H5T_NATIVE_INT64);
+  h5::make_scale(ds, name);
+}
+
+// The values of an axis of the run (a core axis or a declared one).
+std::vector<std::int64_t> axis_values(const RunAxes& ax, const std::string& path, std::vector<double>& fvals,
+                                      bool& is_float) {
+  is_float = false;
+  if (path == "/bounds/region_size") return ax.region_sizes;
+  if (path == "/bounds/local_dim") return ax.local_dims;
+  const CoordDecl* c = ax.schema.axis(path);
+  if (!c) throw ResultFileError("write_results: internal: /stats names an unknown axis " + path);
+  is_float = c->type == Elem::F64;
+  fvals = c->f;
+  return c->i;
+}
+
+void write_stats(const h5::File& f, const h5::Group& root, bool writer, const EnsembleStats& st, const RunAxes& ax) {
   const hsize_t G = static_cast<hsize_t>(st.count.size());
   const std::size_t np = st.param_names.size();
   h5::Group g = h5::create_group(root, "stats");
@@ -626,17 +595,49 @@ void write_stats(const h5::Group& root, bool writer, const EnsembleStats& st) {
   std::vector<std::string> cols;
   for (const auto& c : st.columns) cols.push_back(c.name);
   h5::set_attr(g, "columns", cols);
+  put_index_axis(f, writer, "/stats", "group", G, "index of a group of points that differ only in their seed");
+  std::vector<std::string> attach;  // datasets whose only dimension is the group axis
   for (std::size_t p = 0; p < np; ++p) {
     std::vector<std::int64_t> v(G);
     for (std::size_t i = 0; i < G; ++i) v[i] = st.params[i * np + p];
     put_coord(g, writer, st.param_names[p], v, "1",
               "value of /points/" + st.param_names[p] + " shared by the points of the group");
+    attach.push_back("/stats/" + st.param_names[p]);
   }
   put_coord(g, writer, "count", st.count, "1",
             "number of ok points of the group that the statistics are taken over");
+  attach.push_back("/stats/count");
+  for (const auto& a : attach) attach_dims(f, a, {"/stats/group"});
+  // Copies of the columns' inner axes under /stats (netCDF looks for a
+  // dimension in the group and its ancestors): named after the source axis,
+  // or <its group>_<name> where two sources share a name.
+  std::map<std::string, std::string> copy_of;  // source axis -> /stats path
+  std::set<std::string> taken{"group", "count"};
+  for (const auto& n : st.param_names) taken.insert(n);
+  for (const auto& n : cols) taken.insert(n);
+  for (const auto& c : st.columns)
+    for (const auto& d : c.inner_dims) {
+      if (copy_of.count(d)) continue;
+      std::string name = base_name(d);
+      if (taken.count(name)) name = base_name(parent_path(d)) + "_" + name;
+      while (taken.count(name)) name += "_";
+      taken.insert(name);
+      copy_of[d] = "/stats/" + name;
+      bool fl = false;
+      std::vector<double> fv;
+      const std::vector<std::int64_t> iv = axis_values(ax, d, fv, fl);
+      const hsize_t n = fl ? fv.size() : iv.size();
+      h5::Dataset ds = h5::create_dataset(g, name, fl ? H5T_IEEE_F64LE : H5T_STD_I64LE, {n}, fl);
+      describe(ds, "", "copy of the axis " + d + " (a trailing axis of the statistics of a column)");
+      h5::set_attr(ds, "source", d);
+      if (fl) h5::write_all(ds, writer, fv.data(), H5T_NATIVE_DOUBLE);
+      else h5::write_all(ds, writer, iv.data(), H5T_NATIVE_INT64);
+      h5::make_scale(ds, name);
+    }
   for (const auto& c : st.columns) {
     h5::Group cg = h5::create_group(g, c.name);
     describe(cg, c.units, c.meaning);
+    if (!c.inner_dims.empty()) h5::set_attr(cg, "axes", c.inner_dims);
     std::vector<hsize_t> dims{G};
     for (auto x : c.inner) dims.push_back(static_cast<hsize_t>(x));
     put_whole_f64(cg, writer, "mean", dims, c.mean, c.units,
@@ -650,6 +651,11 @@ void write_stats(const h5::Group& root, bool writer, const EnsembleStats& st) {
                   "median over the ok points of the group (mean of the two middle values for "
                   "even count)");
     cg.close();
+    if (c.inner_dims.size() == c.inner.size()) {
+      std::vector<std::string> sd{"/stats/group"};
+      for (const auto& d : c.inner_dims) sd.push_back(copy_of.at(d));
+      for (const char* n : {"mean", "std", "sem", "median"}) attach_dims(f, "/stats/" + c.name + "/" + n, sd);
+    }
   }
   g.close();
 }
@@ -678,10 +684,26 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
     h5::set_attr(root, "config_hash", meta.config_hash);
     h5::set_attr(root, "total_points", meta.total_points);
     h5::set_attr(root, "shard", meta.shard);
+    h5::set_attr(root, "schema", ax.schema.text());
+    h5::set_attr(root, "schema_hash", ax.schema.hash());
 
     Ctx c;
     c.total = total;
     for (const auto* r : recs) c.rows.push_back(row_of(*r));
+    std::vector<std::string> made;
+    c.made = &made;
+
+    // ---- /point: the point axis of every per-point dataset (a dimension
+    // scale at the root, visible from every group): the global index of
+    // each row.
+    {
+      c.parent = &root;
+      put_i64(c, "point", icolumn(recs, [](const PointRecord& r) { return r.index; }), "1",
+              "the point axis: global index of the point of each row (as /points/index)");
+      made.pop_back();
+      h5::Dataset ds = h5::open_dataset(root, "point");
+      h5::make_scale(ds, "point");
+    }
 
     // ---- /points
     {
@@ -731,6 +753,7 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
         describe(ds, "", "error message of a failed point (UTF-8, at most 255 bytes), empty when ok");
         h5::write_rows(ds, c.rows, msg.data(), t.id());
         ds.close();
+        made.push_back("/points/message");
       }
       put_f64(c, "wall_time", {}, column(recs, [](const PointRecord& r) { return r.wall_time; }),
               "s", "wall-clock time spent computing the point");
@@ -892,6 +915,10 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
       put_coord(g, rank == 0, "local_dim", ax.local_dims, "1",
                 "local Hilbert-space dimension N: last axis of hilbert_cap, lightcone_rate, "
                 "ehrenfest_time and saturation_*");
+      for (const char* n : {"region_size", "local_dim"}) {
+        h5::Dataset ds = h5::open_dataset(g, n);
+        h5::make_scale(ds, n);
+      }
       put_i64_rows(c, "cuts", {hl},
                    irows_of(recs, nl, [](const PointRecord& r) -> const auto& { return r.cuts; }), "1",
                    "boundary cuts c of the ell-site block (bonds with one end inside it), each crossed by "
@@ -928,11 +955,24 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
       g.close();
     }
 
-    // ---- /entanglement
-    if (ax.entanglement.present) write_entanglement(root, c, rank == 0, ax.entanglement, recs);
+    // ---- index axes of the spectrum groups, and every dataset's dimensions
+    put_index_axis(f, rank == 0, "/chaos", "exponent", K, "index of a kept exponent (descending order)");
+    for (const std::string gp : {"/chaos", "/limit"}) {
+      if (gp == "/limit" && !ax.bulk_limit) continue;
+      put_index_axis(f, rank == 0, gp + "/histogram", "bin", bins, "index of a histogram bin");
+      put_index_axis(f, rank == 0, gp + "/histogram", "edge", edges, "index of a histogram bin edge");
+    }
+    for (const std::string& p : made) {
+      std::vector<std::string> dims{"/point"};
+      for (const std::string& d : core_dims(p)) dims.push_back(d);
+      attach_dims(f, p, dims);
+    }
+
+    // ---- the diagnostics (/entanglement, ...), as declared
+    write_diagnostics(f, c, rank == 0, ax.schema, recs);
 
     // ---- /stats
-    if (stats) write_stats(root, rank == 0, *stats);
+    if (stats) write_stats(f, root, rank == 0, *stats, ax);
     root.close();
   }
   f.close();
@@ -945,7 +985,7 @@ void write_file(MPI_Comm comm, const std::string& file, const RunAxes& ax, const
 const std::vector<std::string>& status_labels() {
   static const std::vector<std::string> v{"ok",        "invalid_model",  "overflow", "solver_failed",
                                           "no_method", "internal_error", "pending",
-                                          "entanglement_failed", "inaccurate"};
+                                          "diagnostic_failed", "inaccurate"};
   return v;
 }
 
@@ -1003,19 +1043,9 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   int bulk = ax.bulk_limit ? 1 : 0;
   bcast(comm, bulk);
   ax.bulk_limit = bulk != 0;
-  {
-    EntanglementAxes& e = ax.entanglement;
-    int flags = (e.present ? 1 : 0) | (e.gaussian ? 2 : 0);
-    bcast(comm, flags);
-    e.present = (flags & 1) != 0;
-    e.gaussian = (flags & 2) != 0;
-    bcast(comm, e.periods);
-    bcast(comm, e.region_size);
-    bcast(comm, e.region_sites);
-    bcast(comm, e.local_dims);
-    bcast(comm, e.profile_stride);
-    bcast(comm, e.profile_sites);
-  }
+  std::string schema_text;  // the diagnostics' schema travels as its canonical text
+  if (rank == 0) schema_text = ax.schema.text();
+  bcast(comm, schema_text);
   bcast(comm, mt.toral_version);
   bcast(comm, mt.config_text);
   bcast(comm, mt.config_source);
@@ -1039,15 +1069,15 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
                         " .. " + std::to_string(-red[1]) + ")");
     if (rows < 0) raise(kOther, "write_results: negative rows");
     if (ax.hist_bins < 0) raise(kOther, "write_results: negative hist_bins");
-    if (ax.entanglement.present) {
-      const EntanglementAxes& e = ax.entanglement;
-      std::int64_t width = 0;
-      for (auto n : e.region_size) width = std::max(width, n);
-      if (e.periods < 0 || e.profile_stride < 0 || e.profile_sites < 0 ||
-          std::any_of(e.region_size.begin(), e.region_size.end(), [](std::int64_t n) { return n < 0; }) ||
-          e.region_sites.size() != e.region_size.size() * static_cast<std::size_t>(width))
-        raise(kOther, "write_results: inconsistent entanglement axes (negative sizes, or region_sites "
-                      "is not regions x max region size)");
+    {
+      std::string e;
+      try {
+        ax.schema = Schema::parse(schema_text);
+        e = ax.schema.validate();
+      } catch (const std::exception& ex) {
+        e = ex.what();
+      }
+      if (!e.empty()) raise(kOther, "write_results: diagnostics' schema: " + e);
     }
     if (mt.total_points < 0) raise(kOther, "write_results: negative meta.total_points");
     if (mt.total_points == 0) mt.total_points = rows;
@@ -1292,8 +1322,12 @@ ResultData read_file(const Reader& rd) {
     bad_file(path, "not a toral result file (no root attributes toral_version and layout_version)");
   const std::int64_t version = h5::read_attr_int(root, "layout_version");
   if (version != kLayoutVersion)
-    bad_file(path, "unsupported layout version " + std::to_string(version) +
-                       " (this toral reads layout version " + std::to_string(kLayoutVersion) + ")");
+    bad_file(path, "unsupported layout version " + std::to_string(version) + " (this toral reads layout version " +
+                       std::to_string(kLayoutVersion) +
+                       (version < kLayoutVersion ? "; rerun the config with this toral to rewrite it, docs/layout.md "
+                                                   "lists what changed"
+                                                 : "; written by a newer toral") +
+                       ")");
 
   RunMeta& mt = out.meta;
   mt.toral_version = rd.str(root, "toral_version");
@@ -1469,100 +1503,48 @@ ResultData read_file(const Reader& rd) {
   }
 
   // ---- /entanglement (optional: runs with an [entanglement] table)
-  if (rd.has("/entanglement")) {
-    rd.group("/entanglement");
-    EntanglementAxes& e = ax.entanglement;
-    e.present = true;
-    const hsize_t nt = rd.length("/entanglement/t");
-    if (nt < 1) bad_file(path, "corrupt: /entanglement/t is empty");
-    e.periods = static_cast<std::int64_t>(nt) - 1;
-    const hsize_t nr = rd.length("/entanglement/region_size");
-    e.region_size = rd.i64("/entanglement/region_size", {nr});
-    {
-      const auto d = h5::dims(rd.dataset("/entanglement/region_sites"));
-      if (d.size() != 2 || d[0] != nr)
-        bad_file(path, "corrupt: /entanglement/region_sites has shape " + shape_text(d) + ", expected (" +
-                           std::to_string(nr) + ", width)");
-      e.region_sites = rd.i64("/entanglement/region_sites", d);
+  // ---- the diagnostics, as the file's schema declares them
+  {
+    const std::string text = rd.str_or(root, "schema", "");
+    try {
+      ax.schema = Schema::parse(text);
+    } catch (const std::exception& e) {
+      bad_file(path, std::string("corrupt: root attribute schema: ") + e.what());
     }
-    const std::size_t r_ = static_cast<std::size_t>(nr), t_ = static_cast<std::size_t>(nt);
-    auto each_irow = [&](const std::vector<std::int64_t>& v, std::size_t w,
-                         std::vector<std::int64_t> PointRecord::*m) {
-      for (std::size_t i = 0; i < n; ++i) {
-        const auto b = v.begin() + static_cast<std::ptrdiff_t>(i * w), en = b + static_cast<std::ptrdiff_t>(w);
-        if (std::all_of(b, en, [](std::int64_t x) { return x == -1; }))
-          recs[i].*m = {};
-        else
-          recs[i].*m = {b, en};
+    const std::string v = ax.schema.validate();
+    if (!v.empty()) bad_file(path, "corrupt: root attribute schema: " + v);
+    const std::string h = rd.str_or(root, "schema_hash", "");
+    if (h != ax.schema.hash())
+      bad_file(path, "corrupt: root attribute schema_hash " + h + " does not match its schema (" + ax.schema.hash() + ")");
+    const Schema& sc = ax.schema;
+    for (const CoordDecl& cd : sc.coords) {
+      std::vector<hsize_t> shape;
+      for (const auto& d : cd.dims) shape.push_back(d == cd.path ? cd.size() : sc.axis(d)->size());
+      const bool same = cd.type == Elem::F64 ? rd.f64(cd.path, shape) == cd.f : rd.i64(cd.path, shape) == cd.i;
+      if (!same) bad_file(path, "corrupt: " + cd.path + " differs from its declaration in the schema");
+    }
+    for (auto& r : recs) r.fields.resize(sc.fields.size());
+    for (std::size_t k = 0; k < sc.fields.size(); ++k) {
+      const FieldDecl& fd = sc.fields[k];
+      std::vector<hsize_t> shape{hP};
+      std::size_t w = 1;
+      for (auto x : sc.inner_shape(k)) {
+        shape.push_back(static_cast<hsize_t>(x));
+        w *= static_cast<std::size_t>(x);
       }
-    };
-    each_f64(rd.f64("/entanglement/wall_time", {hP}), &PointRecord::ent_wall_time);
-    each_irow(rd.i64("/entanglement/cuts", {hP, nr}), r_, &PointRecord::ent_cuts);
-    each_row(rd.f64("/entanglement/lyapunov_rate", {hP, nr}), r_, &PointRecord::ent_lyapunov_rate);
-    each_row(rd.f64("/entanglement/region_rate", {hP, nr}), r_, &PointRecord::ent_region_rate);
-    e.gaussian = rd.has("/entanglement/gaussian");
-    if (e.gaussian) {
-      rd.group("/entanglement/gaussian");
-      const std::string b = "/entanglement/gaussian/";
-      each_row(rd.f64(b + "entropy", {hP, nr, nt}), r_ * t_, &PointRecord::gauss_entropy);
-      each_row(rd.f64(b + "radius", {hP, nr, nt}), r_ * t_, &PointRecord::gauss_radius);
-      each_irow(rd.i64(b + "failures", {hP, nr}), r_, &PointRecord::gauss_failures);
-      each_row(rd.f64(b + "slope", {hP, nr}), r_, &PointRecord::gauss_slope);
-      each_row(rd.f64(b + "slope_over_lyapunov", {hP, nr}), r_, &PointRecord::gauss_slope_over_lyapunov);
-      each_row(rd.f64(b + "slope_over_region_rate", {hP, nr}), r_, &PointRecord::gauss_slope_over_region_rate);
-      each_row(rd.f64(b + "saturation_value", {hP, nr}), r_, &PointRecord::gauss_saturation_value);
-      each_row(rd.f64(b + "saturation_time", {hP, nr}), r_, &PointRecord::gauss_saturation_time);
-    }
-    if (rd.has("/entanglement/stabilizer")) {
-      rd.group("/entanglement/stabilizer");
-      const std::string b = "/entanglement/stabilizer/";
-      const hsize_t nn = rd.length(b + "local_dim");
-      e.local_dims = rd.i64(b + "local_dim", {nn});
-      const std::size_t m = static_cast<std::size_t>(nn) * r_;
-      each_row(rd.f64(b + "entropy", {hP, nn, nr, nt}), m * t_, &PointRecord::stab_entropy);
-      each_row(rd.f64(b + "slope", {hP, nn, nr}), m, &PointRecord::stab_slope);
-      each_row(rd.f64(b + "slope_over_lyapunov", {hP, nn, nr}), m, &PointRecord::stab_slope_over_lyapunov);
-      each_row(rd.f64(b + "slope_over_lightcone", {hP, nn, nr}), m, &PointRecord::stab_slope_over_lightcone);
-      each_row(rd.f64(b + "saturation_value", {hP, nn, nr}), m, &PointRecord::stab_saturation_value);
-      each_row(rd.f64(b + "saturation_time", {hP, nn, nr}), m, &PointRecord::stab_saturation_time);
-      each_row(rd.f64(b + "cap", {hP, nn, nr}), m, &PointRecord::stab_cap);
-      each_row(rd.f64(b + "lightcone_rate", {hP, nn, nr}), m, &PointRecord::stab_lightcone_rate);
-      each_irow(rd.i64(b + "violations", {hP, nn, nr}), m, &PointRecord::stab_violations);
-      if (rd.has(b + "profile")) {
-        h5::Dataset pd = rd.dataset(b + "profile");
-        e.profile_stride = rd.int_attr(pd, "stride");
-        if (e.profile_stride < 1) bad_file(path, "corrupt: " + b + "profile has stride " + std::to_string(e.profile_stride));
-        const auto d = h5::dims(pd);
-        const hsize_t nk = static_cast<hsize_t>(e.profile_times());
-        if (d.size() != 4 || d[0] != hP || d[1] != nn || d[2] != nk)
-          bad_file(path, "corrupt: " + b + "profile has shape " + shape_text(d) + ", expected (" +
-                             std::to_string(P) + ", " + std::to_string(nn) + ", " + std::to_string(nk) + ", width)");
-        e.profile_sites = static_cast<std::int64_t>(d[3]);
-        const std::size_t W = static_cast<std::size_t>(d[3]), blocks = static_cast<std::size_t>(nn * nk);
-        const auto v = h5::read_doubles(pd);
-        for (std::size_t i = 0; i < n; ++i) {
-          // The point's own width L + 1: up to the last cut with a value.
-          const std::size_t base = i * blocks * W;
-          std::size_t w = 0;
-          for (std::size_t q = 0; q < blocks; ++q)
-            for (std::size_t x = W; x > w; --x)
-              if (!std::isnan(v[base + q * W + x - 1])) {
-                w = x;
-                break;
-              }
-          std::vector<double>& out = recs[i].stab_profile;
-          out.clear();
-          if (w == 0) continue;
-          out.reserve(blocks * w);
-          for (std::size_t q = 0; q < blocks; ++q)
-            out.insert(out.end(), v.begin() + static_cast<std::ptrdiff_t>(base + q * W),
-                       v.begin() + static_cast<std::ptrdiff_t>(base + q * W + w));
-        }
+      if (fd.type == Elem::F64) {
+        const std::vector<double> v = rd.f64(fd.path, shape);
+        for (std::size_t i = 0; i < n; ++i) recs[i].fields[k] = unpad_row(sc, k, v.data() + i * w, nullptr);
+      } else {
+        const std::vector<std::int64_t> v = rd.i64(fd.path, shape);
+        for (std::size_t i = 0; i < n; ++i) recs[i].fields[k] = unpad_row(sc, k, nullptr, v.data() + i * w);
       }
     }
+    // A record with no value at all held none (the diagnostics were not run).
+    for (auto& r : recs)
+      if (std::all_of(r.fields.begin(), r.fields.end(), [](const FieldValue& x) { return x.empty(); })) r.fields.clear();
   }
 
-  // ---- /stats
   if (rd.has("/stats")) {
     h5::Group g = rd.group("/stats");
     EnsembleStats& st = out.stats;
@@ -1583,6 +1565,7 @@ ResultData read_file(const Reader& rd) {
       h5::Group cg = rd.group(base);
       c.units = rd.str_or(cg, "units", "");
       c.meaning = rd.str_or(cg, "meaning", "");
+      if (h5::has_attr(cg, "axes")) c.inner_dims = rd.strs(cg, "axes");
       const auto d = h5::dims(rd.dataset(base + "/mean"));
       if (d.empty() || d[0] != G)
         bad_file(path, "corrupt: " + base + "/mean has shape " + shape_text(d) + ", expected " +

@@ -23,7 +23,7 @@ namespace toral {
 // Layout version written as the root attribute `layout_version`. Bumped on
 // every incompatible change of docs/layout.md.
 // 2: /bounds/cuts per region size (P, nl), /bounds/lightcone_rate (P, nl, nN).
-constexpr std::int64_t kLayoutVersion = 2;
+constexpr std::int64_t kLayoutVersion = 3;
 
 // Fixed byte size of each /points/message entry (longer messages are
 // truncated on a UTF-8 boundary to kMessageBytes - 1 bytes).

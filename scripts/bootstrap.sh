@@ -14,6 +14,7 @@ PACKAGES=(
   libtomlplusplus-dev libcli11-dev
   googletest libgtest-dev valgrind
   python3 python3-h5py python3-numpy python3-scipy python3-matplotlib python3-pytest
+  python3-sympy python3-mpmath python3-xarray python3-h5netcdf
 )
 
 missing=()
