@@ -48,6 +48,7 @@ int ranks_per_point(const Config& c, const std::vector<Point>& points, int world
         dim = std::max(dim, dense_dim(c.sweeps[static_cast<std::size_t>(p.sweep)], p.L));
     want = std::max<std::int64_t>(1, (dim + 249999) / 250000);
   }
+  for (const auto& p : points) want = std::max<std::int64_t>(want, diagnostic_ranks(c, p));
   return static_cast<int>(std::clamp<std::int64_t>(want, 1, world));
 }
 
@@ -257,11 +258,9 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
   } catch (const std::exception& e) {
     fail(PointStatus::SolverFailed, std::string("solver: ") + e.what());
   }
-  // Exact entanglement dynamics (driver/entangle.cpp) is serial: only the
-  // group's leader, whose record is the one kept, computes it.
-  int group_rank = 0;
-  MPI_Comm_rank(group, &group_rank);
-  if (group_rank == 0) compute_entanglement(c, p, r);
+  // The diagnostics (driver/diagnostics.cpp) after the spectrum: they read
+  // the exponents and the bounds.
+  compute_diagnostics(c, p, r, group);
   r.wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return r;
 }

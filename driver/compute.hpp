@@ -23,7 +23,8 @@ Method planned_method(const Config& c, const Point& p);
 inline bool distributed_method(Method m) { return m == Method::Krylov || m == Method::Tangent; }
 
 // Ranks per distributed point: spectrum.krylov.ranks_per_point, or
-// automatically about one rank per 250 000 matrix rows; at most `world`.
+// automatically about one rank per 250 000 matrix rows, raised to the
+// largest request of the diagnostics (diagnostic_ranks); at most `world`.
 int ranks_per_point(const Config& c, const std::vector<Point>& points, int world);
 
 // Cuts of the /bounds blocks at a point, per region size ell of
@@ -32,7 +33,7 @@ std::vector<std::int64_t> region_cuts(const Config& c, const Point& p);
 
 // `group` is the communicator of a distributed point (MPI_COMM_SELF for the
 // others); every rank of it must call with the same point. Only the record
-// of the group's rank 0 is complete (it alone computes the entanglement).
+// of the group's rank 0 is complete (the diagnostics keep only its output).
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group = MPI_COMM_SELF);
 
 // A rough cost model (floating-point operations) used by `check`.

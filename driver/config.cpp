@@ -195,7 +195,11 @@ Config parse_config(const std::string& text, const std::string& source) {
     cx.fail(static_cast<std::int64_t>(e.source().begin.line), "", std::string("TOML syntax: ") +
                                                                       std::string(e.description()));
   }
-  cx.only_keys(root, "", {"title", "sweep", "spectrum", "bounds", "entanglement"});
+  {
+    std::set<std::string> tables{"title", "sweep", "spectrum", "bounds"};
+    for (const Diagnostic* d : diagnostics()) tables.insert(d->table());  // driver/diagnostics.cpp
+    cx.only_keys(root, "", tables);
+  }
   if (const toml::node* t = root.get("title")) c.title = cx.string(*t, "title");
 
   const toml::node* sw = root.get("sweep");
@@ -327,7 +331,7 @@ Config parse_config(const std::string& text, const std::string& source) {
     }
     if (const toml::node* p = t.get("placement")) B.placement = cx.choice(*p, "bounds.placement", {"bulk", "edge"});
   }
-  c.entanglement = parse_entanglement(text, source, c);  // [entanglement]: driver/entangle.cpp
+  for (const Diagnostic* d : diagnostics()) c.diagnostics.push_back(d->parse(text, source, c));
   return c;
 }
 

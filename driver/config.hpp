@@ -10,7 +10,7 @@
 #include "intmat.hpp"
 #include "model.hpp"
 #include "spectrum.hpp"
-#include "entangle.hpp"
+#include "diagnostic.hpp"
 
 namespace toral {
 
@@ -96,7 +96,9 @@ struct Config {
   std::vector<SweepSpec> sweeps;
   SpectrumSpec spectrum;
   BoundsSpec bounds;
-  EntanglementSpec entanglement;  // [entanglement] (driver/entangle.hpp)
+  // The diagnostics' parsed tables, one per registry entry in its order
+  // (driver/diagnostic.hpp; diagnostic_spec reads one back).
+  std::vector<std::shared_ptr<const DiagnosticSpec>> diagnostics;
 };
 
 // Parses and validates; throws ConfigError with a one-line located message.

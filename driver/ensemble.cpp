@@ -55,57 +55,34 @@ EnsembleStats ensemble_stats(const RunAxes& axes, const std::vector<PointRecord>
       {"saturation_lightcone", {nl, nn}, [](const PointRecord& r) { return std::pair<const double*, std::size_t>(r.saturation_lightcone.data(), r.saturation_lightcone.size()); },
        "periods", "cap / light-cone rate: earliest possible saturation (theorem)"},
   };
-  // The exact entanglement curves' summaries ([entanglement], docs/entanglement.md):
-  // per region, and per local dimension N for the stabilizer ones ([N][region],
-  // as in the records).
-  const EntanglementAxes& ea = axes.entanglement;
-  if (ea.present) {
-    const std::uint64_t nr = ea.regions(), nm = ea.local_dims.size();
-    struct Curve {
-      const char* name;
-      bool stabilizer;  // inner shape (nM, nR) and needs stabilizer curves; else (nR,)
-      bool gaussian;    // needs Gaussian curves
-      std::vector<double> PointRecord::*field;
-      const char* units;
-      const char* meaning;
-    };
-    const Curve curves[] = {
-        {"entanglement_lyapunov_rate", false, false, &PointRecord::ent_lyapunov_rate, "nats/period",
-         "Lambda_|A| of each entanglement region: the asymptotic rate of a generic region"},
-        {"entanglement_region_rate", false, false, &PointRecord::ent_region_rate, "nats/period",
-         "the growth rate each entanglement region reaches: late rate of ln vol(P_A S^t)"},
-        {"gaussian_slope", false, true, &PointRecord::gauss_slope, "nats/period",
-         "late-time slope of the certified Gaussian S_A(t)"},
-        {"gaussian_slope_over_lyapunov", false, true, &PointRecord::gauss_slope_over_lyapunov, "1",
-         "Gaussian slope / Lambda_|A|"},
-        {"gaussian_slope_over_region_rate", false, true, &PointRecord::gauss_slope_over_region_rate, "1",
-         "Gaussian slope / region rate"},
-        {"stabilizer_slope", true, false, &PointRecord::stab_slope, "nats/period",
-         "late-time slope of the stabilizer S_A(t)"},
-        {"stabilizer_slope_over_lyapunov", true, false, &PointRecord::stab_slope_over_lyapunov, "1",
-         "stabilizer slope / Lambda_|A|"},
-        {"stabilizer_slope_over_lightcone", true, false, &PointRecord::stab_slope_over_lightcone, "1",
-         "stabilizer slope / light-cone rate"},
-        {"stabilizer_saturation_value", true, false, &PointRecord::stab_saturation_value, "nats",
-         "max over t of the stabilizer S_A(t)"},
-        {"stabilizer_saturation_time", true, false, &PointRecord::stab_saturation_time, "periods",
-         "first t with S_A(t) >= 0.99 of its maximum"},
-    };
-    for (const Curve& cv : curves) {
-      if ((cv.gaussian && !ea.gaussian) || (cv.stabilizer && nm == 0)) continue;
-      const auto field = cv.field;
-      specs.push_back({cv.name, cv.stabilizer ? std::vector<std::uint64_t>{nm, nr} : std::vector<std::uint64_t>{nr},
-                       [field](const PointRecord& r) {
-                         const std::vector<double>& v = r.*field;
-                         return std::pair<const double*, std::size_t>(v.data(), v.size());
-                       },
-                       cv.units, cv.meaning});
-    }
+  // The diagnostics' fields that declare a /stats column (io/schema.hpp).
+  const Schema& sc = axes.schema;
+  std::vector<std::vector<std::string>> dims(specs.size());
+  const std::string R = "/bounds/region_size", N = "/bounds/local_dim";
+  for (std::size_t k = 0; k < specs.size(); ++k) {
+    const auto& in = specs[k].inner;
+    if (in.size() == 2) dims[k] = {R, N};
+    else if (in.size() == 1) dims[k] = {std::string(specs[k].name) == "ehrenfest_time" ? N : R};
   }
-  for (const auto& s : specs) {
+  for (std::size_t f = 0; f < sc.fields.size(); ++f) {
+    const FieldDecl& fd = sc.fields[f];
+    if (fd.stats.empty()) continue;
+    std::vector<std::uint64_t> inner;
+    for (auto x : sc.inner_shape(f)) inner.push_back(static_cast<std::uint64_t>(x));
+    specs.push_back({fd.stats.c_str(), inner,
+                     [f](const PointRecord& r) {
+                       if (f >= r.fields.size()) return std::pair<const double*, std::size_t>(nullptr, 0);
+                       return std::pair<const double*, std::size_t>(r.fields[f].f.data(), r.fields[f].f.size());
+                     },
+                     fd.units.c_str(), fd.meaning.c_str()});
+    dims.push_back(fd.dims);
+  }
+  for (std::size_t k = 0; k < specs.size(); ++k) {
+    const Spec& s = specs[k];
     StatsColumn c;
     c.name = s.name;
     c.inner = s.inner;
+    c.inner_dims = dims[k];
     c.units = s.units;
     c.meaning = s.meaning;
     st.columns.push_back(std::move(c));

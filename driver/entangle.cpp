@@ -69,6 +69,8 @@ std::int64_t max_sites(const Config& c) {
 
 // ---------------------------------------------------------------- config
 
+namespace {
+
 EntanglementSpec parse_entanglement(const std::string& text, const std::string& source, const Config& c) {
   EntanglementSpec e;
   const Loc cx(source);
@@ -268,29 +270,218 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
   return e;
 }
 
-EntanglementAxes entanglement_axes(const Config& c) {
-  EntanglementAxes a;
-  const EntanglementSpec& e = c.entanglement;
-  if (!e.enabled) return a;
-  a.present = true;
-  a.periods = e.periods;
-  std::size_t width = 0;
-  for (const auto& r : e.regions) {
-    a.region_size.push_back(static_cast<std::int64_t>(r.sites.size()));
-    width = std::max(width, r.sites.size());
-  }
-  a.region_sites.assign(e.regions.size() * width, -1);
-  for (std::size_t i = 0; i < e.regions.size(); ++i)
-    std::copy(e.regions[i].sites.begin(), e.regions[i].sites.end(),
-              a.region_sites.begin() + static_cast<std::ptrdiff_t>(i * width));
-  a.gaussian = e.gaussian;
-  a.local_dims = e.stabilizer_dims;
-  if (e.profile) {
-    a.profile_stride = e.profile_stride;
-    a.profile_sites = max_sites(c) + 1;
-  }
-  return a;
+// One declared field of the diagnostic and the member of EntanglementValues
+// that holds it: the single list behind declare, compute's output and the
+// decoder (entanglement_values).
+struct Slot {
+  FieldDecl decl;
+  double EntanglementValues::*scalar = nullptr;
+  std::vector<double> EntanglementValues::*f = nullptr;
+  std::vector<std::int64_t> EntanglementValues::*i = nullptr;
+};
+
+FieldDecl field(std::string path, Elem type, std::vector<std::string> dims, std::string units, std::string meaning,
+                std::string stats = {}) {
+  FieldDecl f;
+  f.path = std::move(path);
+  f.type = type;
+  f.dims = std::move(dims);
+  f.units = std::move(units);
+  f.meaning = std::move(meaning);
+  f.stats = std::move(stats);
+  return f;
 }
+
+CoordDecl index_axis(std::string path, std::int64_t n, std::string units, std::string meaning, std::int64_t step = 1) {
+  CoordDecl c;
+  c.path = path;
+  c.type = Elem::I64;
+  c.dims = {std::move(path)};
+  for (std::int64_t k = 0; k < n; ++k) c.i.push_back(k * step);
+  c.units = std::move(units);
+  c.meaning = std::move(meaning);
+  return c;
+}
+
+const char* const kG = "/entanglement";
+const std::string kT = "/entanglement/t", kR = "/entanglement/region", kN = "/entanglement/stabilizer/local_dim";
+
+std::vector<Slot> slots(const EntanglementSpec& E) {
+  using V = EntanglementValues;
+  std::vector<Slot> s;
+  auto F = [&](FieldDecl d, std::vector<double> V::*m) { s.push_back({std::move(d), nullptr, m, nullptr}); };
+  auto I = [&](FieldDecl d, std::vector<std::int64_t> V::*m) { s.push_back({std::move(d), nullptr, nullptr, m}); };
+  const std::string g = kG;
+  s.push_back({field(g + "/wall_time", Elem::F64, {}, "s",
+                     "wall-clock time spent in the exact entanglement kernels (part of /points/wall_time)"),
+               &V::ent_wall_time, nullptr, nullptr});
+  I(field(g + "/cuts", Elem::I64, {kR}, "1",
+          "boundary cuts c of the region at the point: bonds with one end inside A; -1 where the region does not fit"),
+    &V::ent_cuts);
+  F(field(g + "/lyapunov_rate", Elem::F64, {kR}, "nats/period",
+          "Lambda_|A|, the asymptotic entropy growth rate of a generic region of |A| sites: sum of the 2 min(|A|, "
+          "L-|A|) largest exponents of the point (as /bounds/lyapunov_rate); not a bound, and not the rate of every "
+          "region (region_rate); NaN where fewer are known and for |A| = L",
+          "entanglement_lyapunov_rate"),
+    &V::ent_lyapunov_rate);
+  F(field(g + "/region_rate", Elem::F64, {kR}, "nats/period",
+          "the growth rate this region's Gaussian entropy reaches: late-time least-squares slope (window "
+          "slope_window) of ln vol(P_A S^t), the exact log-volume of the 2 min(|A|, L-|A|)-site rows of S^t "
+          "(kernels/region_rate.hpp); equals lyapunov_rate for a generic region, less for a region in a special "
+          "position; a rate, not a bound; NaN for |A| = L and for circuits redrawn every period",
+          "entanglement_region_rate"),
+    &V::ent_region_rate);
+  if (E.gaussian) {
+    const std::string q = g + "/gaussian";
+    F(field(q + "/entropy", Elem::F64, {kR, kT}, "nats", "midpoint of the certified von Neumann entropy S_A(t), [region][t]"),
+      &V::gauss_entropy);
+    F(field(q + "/radius", Elem::F64, {kR, kT}, "nats", "certified radius: |S_A(t) - entropy| <= radius, [region][t]"),
+      &V::gauss_radius);
+    I(field(q + "/failures", Elem::I64, {kR}, "1",
+            "number of t whose radius missed the target (then the point's status is diagnostic_failed); -1 not "
+            "computed"),
+      &V::gauss_failures);
+    F(field(q + "/slope", Elem::F64, {kR}, "nats/period",
+            "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)", "gaussian_slope"),
+      &V::gauss_slope);
+    F(field(q + "/slope_over_lyapunov", Elem::F64, {kR}, "1",
+            "slope / Lambda_|A| (/entanglement/lyapunov_rate) by the rule for ratios over rates (x/0 = +-inf for x "
+            "!= 0, 0/0 = NaN); tends to 1 for a generic region of a chaotic circuit, below 1 for a region in a "
+            "special position",
+            "gaussian_slope_over_lyapunov"),
+      &V::gauss_slope_over_lyapunov);
+    F(field(q + "/slope_over_region_rate", Elem::F64, {kR}, "1",
+            "slope / region_rate (/entanglement/region_rate), same window, by the rule for ratios over rates; tends "
+            "to 1 for every region (S_A(t) - ln vol(P_A S^t) stays bounded)",
+            "gaussian_slope_over_region_rate"),
+      &V::gauss_slope_over_region_rate);
+    F(field(q + "/saturation_value", Elem::F64, {kR}, "nats", "max over t of S_A(t)"), &V::gauss_saturation_value);
+    F(field(q + "/saturation_time", Elem::F64, {kR}, "periods", "first t with S_A(t) >= 0.99 saturation_value"),
+      &V::gauss_saturation_time);
+  }
+  if (!E.stabilizer_dims.empty()) {
+    const std::string q = g + "/stabilizer";
+    F(field(q + "/entropy", Elem::F64, {kN, kR, kT}, "nats",
+            "entanglement entropy S_A(t), exact (a sum of integer multiples of ln p), [N][region][t]"),
+      &V::stab_entropy);
+    F(field(q + "/slope", Elem::F64, {kN, kR}, "nats/period",
+            "late-time least-squares slope of S_A(t) (attribute slope_window of /entanglement)", "stabilizer_slope"),
+      &V::stab_slope);
+    F(field(q + "/slope_over_lyapunov", Elem::F64, {kN, kR}, "1",
+            "slope / Lambda_|A| (/entanglement/lyapunov_rate), by the rule for ratios over rates",
+            "stabilizer_slope_over_lyapunov"),
+      &V::stab_slope_over_lyapunov);
+    F(field(q + "/slope_over_lightcone", Elem::F64, {kN, kR}, "1",
+            "slope / lightcone_rate (at most 1: the light cone is a bound)", "stabilizer_slope_over_lightcone"),
+      &V::stab_slope_over_lightcone);
+    F(field(q + "/saturation_value", Elem::F64, {kN, kR}, "nats", "max over t of S_A(t)", "stabilizer_saturation_value"),
+      &V::stab_saturation_value);
+    F(field(q + "/saturation_time", Elem::F64, {kN, kR}, "periods", "first t with S_A(t) >= 0.99 saturation_value",
+            "stabilizer_saturation_time"),
+      &V::stab_saturation_time);
+    F(field(q + "/cap", Elem::F64, {kN, kR}, "nats",
+            "Hilbert-space cap min(|A|, L-|A|) ln N: a bound on S_A (theorem)"),
+      &V::stab_cap);
+    F(field(q + "/lightcone_rate", Elem::F64, {kN, kR}, "nats/period",
+            "light-cone rate 2 c ln N of the region's c cuts: a bound on the growth of S_A per period (theorem)"),
+      &V::stab_lightcone_rate);
+    I(field(q + "/violations", Elem::I64, {kN, kR}, "1",
+            "number of t with S_A(t) > cap + 1e-9 or S_A(t) - S_A(0) > lightcone_rate t + 1e-9; 0 by theorem; -1 "
+            "not computed"),
+      &V::stab_violations);
+    if (E.profile) {
+      FieldDecl d = field(q + "/profile", Elem::F64, {kN, q + "/profile_t", q + "/cut"}, "nats",
+                          "S([0, x)) of the site prefix [0, x) at t = profile_t[k], [N][k][x], x = 0..L; NaN padded "
+                          "beyond the point's L");
+      d.ragged = {false, false, true};
+      d.attrs.push_back(AttrDecl::of("stride", E.profile_stride));
+      F(std::move(d), &V::stab_profile);
+    }
+  }
+  return s;
+}
+
+Schema declare_entanglement(const Config& c) {
+  const EntanglementSpec& e = entanglement_spec(c);
+  Schema s;
+  GroupDecl g;
+  g.path = kG;
+  g.meaning =
+      "exact entanglement dynamics S_A(t), t = 0..T, of fixed regions A from a product initial state "
+      "(docs/entanglement.md); NaN (int64: -1) where a region does not fit the point's lattice or nothing was "
+      "computed";
+  g.attrs = {AttrDecl::of("slope_window",
+                          std::string("least-squares slope of S_A(t), and of ln vol(P_A S^t) for region_rate, over t "
+                                      "= t0..T, t0 = min(ceil(3T/4), T-1); NaN for T = 0")),
+             AttrDecl::of("saturation_fraction", kSaturationFraction),
+             AttrDecl::of("violation_tolerance", kViolationTolerance)};
+  s.groups.push_back(g);
+  if (e.gaussian)
+    s.groups.push_back({std::string(kG) + "/gaussian",
+                        "certified entropies of Gaussian states on R^2L under x -> S x (kernels/gaussian_exact.hpp); "
+                        "the exact value lies within entropy +- radius",
+                        {}});
+  if (!e.stabilizer_dims.empty())
+    s.groups.push_back({std::string(kG) + "/stabilizer",
+                        "exact entropies of stabilizer states of L qudits of dimension N under the circuit read as a "
+                        "Clifford circuit mod N (kernels/stabilizer.hpp), [N][region][t]",
+                        {}});
+  s.coords.push_back(index_axis(kT, e.periods + 1, "periods", "time t of the last axis of every entropy curve: 0..T"));
+  s.coords.push_back(index_axis(kR, static_cast<std::int64_t>(e.regions.size()), "1",
+                                "the region axis: index of a region in entanglement.regions (0-based)"));
+  std::size_t width = 0;
+  {
+    CoordDecl r;
+    r.path = std::string(kG) + "/region_size";
+    r.type = Elem::I64;
+    r.dims = {kR};
+    for (const auto& reg : e.regions) {
+      r.i.push_back(static_cast<std::int64_t>(reg.sites.size()));
+      width = std::max(width, reg.sites.size());
+    }
+    r.units = "sites";
+    r.meaning = "|A|, the number of sites of each region (along the region axis; sizes may repeat)";
+    s.coords.push_back(std::move(r));
+  }
+  const std::string slot = std::string(kG) + "/site_slot";
+  s.coords.push_back(index_axis(slot, static_cast<std::int64_t>(width), "1",
+                                "position of a site within its region: last axis of region_sites"));
+  {
+    CoordDecl r;
+    r.path = std::string(kG) + "/region_sites";
+    r.type = Elem::I64;
+    r.dims = {kR, slot};
+    r.i.assign(e.regions.size() * width, -1);
+    for (std::size_t i = 0; i < e.regions.size(); ++i)
+      std::copy(e.regions[i].sites.begin(), e.regions[i].sites.end(),
+                r.i.begin() + static_cast<std::ptrdiff_t>(i * width));
+    r.units = "1";
+    r.meaning = "sites of each region (row), ascending; -1 padded to the largest region";
+    s.coords.push_back(std::move(r));
+  }
+  if (!e.stabilizer_dims.empty()) {
+    CoordDecl n;
+    n.path = kN;
+    n.type = Elem::I64;
+    n.dims = {kN};
+    n.i = e.stabilizer_dims;
+    n.units = "1";
+    n.meaning = "local dimension N: axis 1 of every per-point dataset";
+    s.coords.push_back(std::move(n));
+    if (e.profile) {
+      const std::string q = std::string(kG) + "/stabilizer";
+      s.coords.push_back(index_axis(q + "/profile_t", e.periods / e.profile_stride + 1, "periods",
+                                    "time of axis 2 of profile: k * stride", e.profile_stride));
+      s.coords.push_back(index_axis(q + "/cut", max_sites(c) + 1, "sites",
+                                    "x of the prefix [0, x): last axis of profile, 0 .. the largest L of the run"));
+    }
+  }
+  for (auto& sl : slots(e)) s.fields.push_back(std::move(sl.decl));
+  return s;
+}
+
+
+}  // namespace
 
 // ---------------------------------------------------------------- pieces
 
@@ -344,37 +535,38 @@ std::int64_t bound_violations(const double* S, std::size_t n, double cap, double
 
 // ---------------------------------------------------------------- per point
 
-void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
-  const EntanglementSpec& E = c.entanglement;
-  if (!E.enabled) return;
+namespace {
+
+// The values of point p; `failure` receives the first failure ("" when none).
+EntanglementValues compute_values(const Config& c, const Point& p, const PointRecord& r, std::string& failure) {
+  const EntanglementSpec& E = entanglement_spec(c);
+  EntanglementValues v;
   const auto t0 = std::chrono::steady_clock::now();
   const std::size_t nr = E.regions.size(), nt = static_cast<std::size_t>(E.periods) + 1;
   const std::size_t nn = E.stabilizer_dims.size();
-  r.ent_cuts.assign(nr, -1);
-  r.ent_lyapunov_rate.assign(nr, kNaN);
-  r.ent_region_rate.assign(nr, kNaN);
+  v.ent_cuts.assign(nr, -1);
+  v.ent_lyapunov_rate.assign(nr, kNaN);
+  v.ent_region_rate.assign(nr, kNaN);
   if (E.gaussian) {
-    r.gauss_entropy.assign(nr * nt, kNaN);
-    r.gauss_radius.assign(nr * nt, kNaN);
-    r.gauss_failures.assign(nr, -1);
-    for (auto* v : {&r.gauss_slope, &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate,
-                    &r.gauss_saturation_value, &r.gauss_saturation_time})
+    v.gauss_entropy.assign(nr * nt, kNaN);
+    v.gauss_radius.assign(nr * nt, kNaN);
+    v.gauss_failures.assign(nr, -1);
+    for (auto* v : {&v.gauss_slope, &v.gauss_slope_over_lyapunov, &v.gauss_slope_over_region_rate,
+                    &v.gauss_saturation_value, &v.gauss_saturation_time})
       v->assign(nr, kNaN);
   }
   if (nn > 0) {
-    r.stab_entropy.assign(nn * nr * nt, kNaN);
-    for (auto* v : {&r.stab_slope, &r.stab_slope_over_lyapunov, &r.stab_slope_over_lightcone,
-                    &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap, &r.stab_lightcone_rate})
+    v.stab_entropy.assign(nn * nr * nt, kNaN);
+    for (auto* v : {&v.stab_slope, &v.stab_slope_over_lyapunov, &v.stab_slope_over_lightcone,
+                    &v.stab_saturation_value, &v.stab_saturation_time, &v.stab_cap, &v.stab_lightcone_rate})
       v->assign(nn * nr, kNaN);
-    r.stab_violations.assign(nn * nr, -1);
+    v.stab_violations.assign(nn * nr, -1);
   }
   auto finish = [&] {
-    r.ent_wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    v.ent_wall_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   };
   auto note = [&](const std::string& what) {
-    if (r.status != static_cast<std::int32_t>(PointStatus::Ok)) return;  // keep the first failure
-    r.status = static_cast<std::int32_t>(PointStatus::EntanglementFailed);
-    r.message = "entanglement: " + what;
+    if (failure.empty()) failure = what;  // keep the first failure
   };
   // Cuts and Lambda_|A| (the asymptotic rate of a generic region) need only
   // the lattice and the exponents: they are filled also where no curve can
@@ -385,22 +577,22 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     const auto& sites = E.regions[k].sites;
     if (sites.back() >= L) continue;  // does not fit this lattice: NaN / -1
     fits[k] = 1;
-    r.ent_cuts[k] = boundary_cuts(sites, L, p.boundary);
-    r.ent_lyapunov_rate[k] = lyapunov_rate(r.exponents, L, static_cast<std::int64_t>(sites.size()));
+    v.ent_cuts[k] = boundary_cuts(sites, L, p.boundary);
+    v.ent_lyapunov_rate[k] = lyapunov_rate(r.exponents, L, static_cast<std::int64_t>(sites.size()));
   }
   Circuit circ;
   try {
     const GateSource gs = gate_source(c, p);
     if (!gs.time_periodic) {  // the kernels take one time-periodic circuit: NaN curves (docs)
       finish();
-      return;
+      return v;
     }
     circ = materialize(gs);
     circ.validate();
   } catch (const std::exception& ex) {
     note(ex.what());
     finish();
-    return;
+    return v;
   }
 
   // The rate each region reaches: the late slope of the exact log-volume of
@@ -412,7 +604,7 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     for (std::size_t k = 0; k < nr; ++k) {
       if (!fits[k]) continue;
       try {
-        r.ent_region_rate[k] = region_rate(circ, E.regions[k].sites, E.periods, ro).rate;
+        v.ent_region_rate[k] = region_rate(circ, E.regions[k].sites, E.periods, ro).rate;
       } catch (const std::exception& ex) {
         note("region rate of region " + std::to_string(k) + ": " + ex.what());
       }
@@ -425,15 +617,15 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
       if (!fits[k]) continue;
       try {
         const EntropyCurve cv = gaussian_entropy_curve(circ, init, E.regions[k].sites, E.periods, entropy_options(E));
-        std::copy(cv.entropy.begin(), cv.entropy.end(), r.gauss_entropy.begin() + static_cast<std::ptrdiff_t>(k * nt));
-        std::copy(cv.radius.begin(), cv.radius.end(), r.gauss_radius.begin() + static_cast<std::ptrdiff_t>(k * nt));
-        r.gauss_failures[k] = cv.failures;
+        std::copy(cv.entropy.begin(), cv.entropy.end(), v.gauss_entropy.begin() + static_cast<std::ptrdiff_t>(k * nt));
+        std::copy(cv.radius.begin(), cv.radius.end(), v.gauss_radius.begin() + static_cast<std::ptrdiff_t>(k * nt));
+        v.gauss_failures[k] = cv.failures;
         const CurveSummary s = summarize_curve(cv.entropy.data(), nt);
-        r.gauss_slope[k] = s.slope;
-        r.gauss_slope_over_lyapunov[k] = rate_ratio(s.slope, r.ent_lyapunov_rate[k]);
-        r.gauss_slope_over_region_rate[k] = rate_ratio(s.slope, r.ent_region_rate[k]);
-        r.gauss_saturation_value[k] = s.saturation_value;
-        r.gauss_saturation_time[k] = s.saturation_time;
+        v.gauss_slope[k] = s.slope;
+        v.gauss_slope_over_lyapunov[k] = rate_ratio(s.slope, v.ent_lyapunov_rate[k]);
+        v.gauss_slope_over_region_rate[k] = rate_ratio(s.slope, v.ent_region_rate[k]);
+        v.gauss_saturation_value[k] = s.saturation_value;
+        v.gauss_saturation_time[k] = s.saturation_time;
         if (cv.failures > 0) {
           const double worst = *std::max_element(cv.radius.begin(), cv.radius.end());
           std::ostringstream os;
@@ -459,22 +651,22 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
         const std::size_t q = j * nr + k;
         const std::int64_t A = static_cast<std::int64_t>(E.regions[k].sites.size());
         const double cap = static_cast<double>(std::min(A, L - A)) * lnN;
-        const double rate = 2.0 * static_cast<double>(r.ent_cuts[k]) * lnN;
-        r.stab_cap[q] = cap;
-        r.stab_lightcone_rate[q] = rate;
+        const double rate = 2.0 * static_cast<double>(v.ent_cuts[k]) * lnN;
+        v.stab_cap[q] = cap;
+        v.stab_lightcone_rate[q] = rate;
         try {
           const std::vector<double> S = stabilizer_entropy_curve(circ, N, init, E.regions[k].sites, E.periods);
-          std::copy(S.begin(), S.end(), r.stab_entropy.begin() + static_cast<std::ptrdiff_t>(q * nt));
+          std::copy(S.begin(), S.end(), v.stab_entropy.begin() + static_cast<std::ptrdiff_t>(q * nt));
           const CurveSummary s = summarize_curve(S.data(), nt);
-          r.stab_slope[q] = s.slope;
-          r.stab_slope_over_lyapunov[q] = rate_ratio(s.slope, r.ent_lyapunov_rate[k]);
-          r.stab_slope_over_lightcone[q] = rate_ratio(s.slope, rate);
-          r.stab_saturation_value[q] = s.saturation_value;
-          r.stab_saturation_time[q] = s.saturation_time;
-          r.stab_violations[q] = bound_violations(S.data(), nt, cap, rate, kViolationTolerance);
-          if (r.stab_violations[q] > 0)
+          v.stab_slope[q] = s.slope;
+          v.stab_slope_over_lyapunov[q] = rate_ratio(s.slope, v.ent_lyapunov_rate[k]);
+          v.stab_slope_over_lightcone[q] = rate_ratio(s.slope, rate);
+          v.stab_saturation_value[q] = s.saturation_value;
+          v.stab_saturation_time[q] = s.saturation_time;
+          v.stab_violations[q] = bound_violations(S.data(), nt, cap, rate, kViolationTolerance);
+          if (v.stab_violations[q] > 0)
             note("stabilizer N = " + std::to_string(N) + " region " + std::to_string(k) + ": " +
-                 std::to_string(r.stab_violations[q]) + " times above the Hilbert cap or the light cone (a bug)");
+                 std::to_string(v.stab_violations[q]) + " times above the Hilbert cap or the light cone (a bug)");
         } catch (const std::exception& ex) {
           note("stabilizer N = " + std::to_string(N) + " region " + std::to_string(k) + ": " + ex.what());
         }
@@ -483,13 +675,13 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     if (E.profile) {
       const std::size_t nk = static_cast<std::size_t>(E.periods / E.profile_stride) + 1;
       const std::size_t w = static_cast<std::size_t>(L) + 1;
-      r.stab_profile.assign(nn * nk * w, kNaN);
+      v.stab_profile.assign(nn * nk * w, kNaN);
       for (std::size_t j = 0; j < nn; ++j) {
         try {
           const auto prof = stabilizer_profile(circ, E.stabilizer_dims[j], init, E.periods, E.profile_stride);
           for (std::size_t k = 0; k < nk && k < prof.size(); ++k)
             std::copy_n(prof[k].begin(), std::min(w, prof[k].size()),
-                        r.stab_profile.begin() + static_cast<std::ptrdiff_t>((j * nk + k) * w));
+                        v.stab_profile.begin() + static_cast<std::ptrdiff_t>((j * nk + k) * w));
         } catch (const std::exception& ex) {
           note("stabilizer profile N = " + std::to_string(E.stabilizer_dims[j]) + ": " + ex.what());
         }
@@ -497,7 +689,10 @@ void compute_entanglement(const Config& c, const Point& p, PointRecord& r) {
     }
   }
   finish();
+  return v;
 }
+
+}  // namespace
 
 EntropyOptions entropy_options(const EntanglementSpec& E) {
   EntropyOptions o;
@@ -508,7 +703,7 @@ EntropyOptions entropy_options(const EntanglementSpec& E) {
 
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p) {
   EntanglementEstimate est;
-  const EntanglementSpec& E = c.entanglement;
+  const EntanglementSpec& E = entanglement_spec(c);
   if (!E.enabled) return est;
   const GateSource gs = gate_source(c, p);
   if (!gs.time_periodic) return est;  // NaN curves, nothing computed
@@ -613,56 +808,10 @@ std::int64_t iat(const std::vector<std::int64_t>& v, std::size_t i) { return i <
 
 }  // namespace
 
-void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r, bool json) {
-  const EntanglementSpec& E = c.entanglement;
-  if (!E.enabled) return;
-  const EntanglementAxes ax = entanglement_axes(c);
-  const std::size_t nr = E.regions.size();
-  if (json) {
-    std::vector<std::int64_t> t(ax.times());
-    std::iota(t.begin(), t.end(), std::int64_t{0});
-    std::string sites = "[";
-    for (std::size_t k = 0; k < nr; ++k) sites += (k ? ", " : "") + json_array(E.regions[k].sites);
-    sites += "]";
-    auto m = [&](const char* path, const std::string& value) { os << ",\n  \"" << path << "\": " << value; };
-    m("/entanglement/t", json_array(t));
-    m("/entanglement/region_size", json_array(ax.region_size));
-    m("/entanglement/region_sites", sites);
-    m("/entanglement/wall_time", json_num(r.ent_wall_time));
-    m("/entanglement/cuts", json_array(r.ent_cuts));
-    m("/entanglement/lyapunov_rate", json_array(r.ent_lyapunov_rate));
-    m("/entanglement/region_rate", json_array(r.ent_region_rate));
-    if (E.gaussian) {
-      m("/entanglement/gaussian/entropy", json_array(r.gauss_entropy));
-      m("/entanglement/gaussian/radius", json_array(r.gauss_radius));
-      m("/entanglement/gaussian/failures", json_array(r.gauss_failures));
-      m("/entanglement/gaussian/slope", json_array(r.gauss_slope));
-      m("/entanglement/gaussian/slope_over_lyapunov", json_array(r.gauss_slope_over_lyapunov));
-      m("/entanglement/gaussian/slope_over_region_rate", json_array(r.gauss_slope_over_region_rate));
-      m("/entanglement/gaussian/saturation_value", json_array(r.gauss_saturation_value));
-      m("/entanglement/gaussian/saturation_time", json_array(r.gauss_saturation_time));
-    }
-    if (!E.stabilizer_dims.empty()) {
-      m("/entanglement/stabilizer/local_dim", json_array(E.stabilizer_dims));
-      m("/entanglement/stabilizer/entropy", json_array(r.stab_entropy));
-      m("/entanglement/stabilizer/slope", json_array(r.stab_slope));
-      m("/entanglement/stabilizer/slope_over_lyapunov", json_array(r.stab_slope_over_lyapunov));
-      m("/entanglement/stabilizer/slope_over_lightcone", json_array(r.stab_slope_over_lightcone));
-      m("/entanglement/stabilizer/saturation_value", json_array(r.stab_saturation_value));
-      m("/entanglement/stabilizer/saturation_time", json_array(r.stab_saturation_time));
-      m("/entanglement/stabilizer/cap", json_array(r.stab_cap));
-      m("/entanglement/stabilizer/lightcone_rate", json_array(r.stab_lightcone_rate));
-      m("/entanglement/stabilizer/violations", json_array(r.stab_violations));
-      if (E.profile) {
-        std::vector<std::int64_t> tk(ax.profile_times());
-        for (std::size_t k = 0; k < tk.size(); ++k) tk[k] = static_cast<std::int64_t>(k) * E.profile_stride;
-        m("/entanglement/stabilizer/profile_t", json_array(tk));
-        m("/entanglement/stabilizer/profile", json_array(r.stab_profile));
-      }
-    }
-    return;
-  }
-  os << "  exact entanglement, t = 0.." << E.periods << " (" << num(r.ent_wall_time, 3) << " s; slope over the last"
+// The human-readable table of `toral point`.
+void print_values(std::ostream& os, const EntanglementSpec& E, const EntanglementValues& v) {
+  const std::size_t nr = E.regions.size(), ntimes = static_cast<std::size_t>(E.periods) + 1;
+  os << "  exact entanglement, t = 0.." << E.periods << " (" << num(v.ent_wall_time, 3) << " s; slope over the last"
      << " quarter, sat. = first t at 99% of the max;\n  Lambda_|A| = asymptotic rate of a generic region, region = rate"
      << " this region reaches, neither a bound):\n";
   if (E.gaussian) {
@@ -670,25 +819,25 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
        << std::setw(12) << "region" << std::setw(12) << "slope" << std::setw(10) << "/Lambda" << std::setw(10)
        << "/region" << std::setw(12) << "S(T)" << std::setw(8) << "sat.t" << std::setw(12) << "max radius" << "\n";
     for (std::size_t k = 0; k < nr; ++k) {
-      const std::size_t nt = ax.times();
+      const std::size_t nt = ntimes;
       double rad = kNaN;
       for (std::size_t t = 0; t < nt; ++t) {
-        const double x = at(r.gauss_radius, k * nt + t);
+        const double x = at(v.gauss_radius, k * nt + t);
         if (!std::isnan(x)) rad = std::isnan(rad) ? x : std::max(rad, x);
       }
-      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.ent_region_rate, k))
-         << std::setw(12) << num(at(r.gauss_slope, k)) << std::setw(10) << num(at(r.gauss_slope_over_lyapunov, k), 4)
-         << std::setw(10) << num(at(r.gauss_slope_over_region_rate, k), 4) << std::setw(12)
-         << num(at(r.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << num(at(r.gauss_saturation_time, k))
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(v.ent_cuts, k)
+         << std::setw(12) << num(at(v.ent_lyapunov_rate, k)) << std::setw(12) << num(at(v.ent_region_rate, k))
+         << std::setw(12) << num(at(v.gauss_slope, k)) << std::setw(10) << num(at(v.gauss_slope_over_lyapunov, k), 4)
+         << std::setw(10) << num(at(v.gauss_slope_over_region_rate, k), 4) << std::setw(12)
+         << num(at(v.gauss_entropy, k * nt + nt - 1)) << std::setw(8) << num(at(v.gauss_saturation_time, k))
          << std::setw(12) << num(rad, 2) << "\n";
     }
   } else {
     os << "    regions  " << std::setw(8) << "|A|" << std::setw(6) << "cuts" << std::setw(12) << "Lambda_|A|"
        << std::setw(12) << "region" << "\n";
     for (std::size_t k = 0; k < nr; ++k)
-      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << num(at(r.ent_lyapunov_rate, k)) << std::setw(12) << num(at(r.ent_region_rate, k))
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(v.ent_cuts, k)
+         << std::setw(12) << num(at(v.ent_lyapunov_rate, k)) << std::setw(12) << num(at(v.ent_region_rate, k))
          << "\n";
   }
   for (std::size_t j = 0; j < E.stabilizer_dims.size(); ++j) {
@@ -697,13 +846,113 @@ void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r,
        << "sat.value" << std::setw(8) << "sat.t" << std::setw(10) << "cap" << std::setw(6) << "viol." << "\n";
     for (std::size_t k = 0; k < nr; ++k) {
       const std::size_t q = j * nr + k;
-      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(r.ent_cuts, k)
-         << std::setw(12) << num(at(r.stab_slope, q)) << std::setw(10) << num(at(r.stab_slope_over_lyapunov, q), 4)
-         << std::setw(10) << num(at(r.stab_slope_over_lightcone, q), 4) << std::setw(12)
-         << num(at(r.stab_saturation_value, q)) << std::setw(8) << num(at(r.stab_saturation_time, q))
-         << std::setw(10) << num(at(r.stab_cap, q), 5) << std::setw(6) << iat(r.stab_violations, q) << "\n";
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(v.ent_cuts, k)
+         << std::setw(12) << num(at(v.stab_slope, q)) << std::setw(10) << num(at(v.stab_slope_over_lyapunov, q), 4)
+         << std::setw(10) << num(at(v.stab_slope_over_lightcone, q), 4) << std::setw(12)
+         << num(at(v.stab_saturation_value, q)) << std::setw(8) << num(at(v.stab_saturation_time, q))
+         << std::setw(10) << num(at(v.stab_cap, q), 5) << std::setw(6) << iat(v.stab_violations, q) << "\n";
     }
   }
+}
+
+
+// ---------------------------------------------------------------- the diagnostic
+
+namespace {
+
+// The values of `v` as compute's output, one per slot.
+std::vector<FieldValue> emit(const EntanglementSpec& E, const EntanglementValues& v) {
+  std::vector<FieldValue> out;
+  for (const Slot& sl : slots(E)) {
+    FieldValue fv;
+    if (sl.scalar) {
+      fv.f = {v.*sl.scalar};
+    } else {
+      const std::size_t n = sl.f ? (v.*sl.f).size() : (v.*sl.i).size();
+      if (n > 0) {
+        if (sl.f) fv.f = v.*sl.f;
+        else fv.i = v.*sl.i;
+        const std::size_t nr = E.regions.size(), nn = E.stabilizer_dims.size(), nt = static_cast<std::size_t>(E.periods) + 1;
+        const auto& d = sl.decl.dims;
+        for (const auto& x : d) {
+          if (x == kR) fv.shape.push_back(static_cast<std::int64_t>(nr));
+          else if (x == kT) fv.shape.push_back(static_cast<std::int64_t>(nt));
+          else if (x == kN) fv.shape.push_back(static_cast<std::int64_t>(nn));
+          else if (x.size() > 10 && x.compare(x.size() - 10, 10, "/profile_t") == 0)
+            fv.shape.push_back(E.periods / E.profile_stride + 1);
+          else  // the prefix cut x = 0..L of this point: what is left
+            fv.shape.push_back(static_cast<std::int64_t>(n / (nn * static_cast<std::size_t>(E.periods / E.profile_stride + 1))));
+        }
+      }
+    }
+    out.push_back(std::move(fv));
+  }
+  return out;
+}
+
+EntanglementValues decode(const EntanglementSpec& E, const FieldValue* values, std::size_t count) {
+  EntanglementValues v;
+  const std::vector<Slot> sl = slots(E);
+  for (std::size_t k = 0; k < sl.size() && k < count; ++k) {
+    const FieldValue& fv = values[k];
+    if (sl[k].scalar) v.*sl[k].scalar = fv.f.empty() ? kNaN : fv.f[0];
+    else if (sl[k].f) v.*sl[k].f = fv.f;
+    else v.*sl[k].i = fv.i;
+  }
+  return v;
+}
+
+class EntanglementDiagnostic final : public Diagnostic {
+ public:
+  std::string table() const override { return "entanglement"; }
+  std::shared_ptr<const DiagnosticSpec> parse(const std::string& text, const std::string& source,
+                                              const Config& c) const override {
+    return std::make_shared<EntanglementSpec>(parse_entanglement(text, source, c));
+  }
+  Schema declare(const Config& c) const override { return declare_entanglement(c); }
+  DiagnosticOutput compute(const Config& c, const Point& p, const PointRecord& r, MPI_Comm group) const override {
+    // Serial kernels: only the group's leader, whose record is kept, computes.
+    int rank = 0;
+    MPI_Comm_rank(group, &rank);
+    DiagnosticOutput out;
+    if (rank != 0) return out;
+    const EntanglementValues v = compute_values(c, p, r, out.failure);
+    out.fields = emit(entanglement_spec(c), v);
+    return out;
+  }
+  DiagnosticEstimate estimate(const Config& c, const Point& p) const override {
+    const EntanglementEstimate e = estimate_entanglement(c, p);
+    return {e.gaussian_s + e.stabilizer_s + e.region_s, e.bytes};
+  }
+  void print_text(std::ostream& os, const Config& c, const std::vector<FieldValue>& values) const override {
+    const EntanglementSpec& E = entanglement_spec(c);
+    print_values(os, E, decode(E, values.data(), values.size()));
+  }
+};
+
+}  // namespace
+
+const Diagnostic& entanglement_diagnostic() {
+  static const EntanglementDiagnostic d;
+  return d;
+}
+
+const EntanglementSpec& entanglement_spec(const Config& c) {
+  const auto& reg = diagnostics();
+  for (std::size_t k = 0; k < reg.size(); ++k)
+    if (reg[k] == &entanglement_diagnostic()) return static_cast<const EntanglementSpec&>(diagnostic_spec(c, k));
+  throw std::logic_error("entanglement diagnostic missing from the registry");
+}
+
+EntanglementValues entanglement_values(const Config& c, const PointRecord& r) {
+  const EntanglementSpec& E = entanglement_spec(c);
+  if (!E.enabled || r.fields.empty()) return {};
+  std::vector<std::size_t> off;
+  const Schema s = run_schema(c, &off);
+  const auto& reg = diagnostics();
+  for (std::size_t k = 0; k < reg.size(); ++k)
+    if (reg[k] == &entanglement_diagnostic()) return decode(E, r.fields.data() + off[k], off[k + 1] - off[k]);
+  return {};
 }
 
 }  // namespace toral

@@ -4,15 +4,15 @@
 // comparison with the bounds, and the human / JSON output of `toral point`.
 // docs/entanglement.md is the reference; the file layout is docs/layout.md.
 //
-// Included by config.hpp (Config holds an EntanglementSpec), so this header
-// must not include config.hpp or sweep.hpp: Config and Point are only
-// declared here.
+// A diagnostic (driver/diagnostic.hpp): its registry line is in
+// driver/diagnostics.cpp; this header is for it and for tests.
 #pragma once
 #include <cstdint>
 #include <ostream>
 #include <string>
 #include <vector>
 
+#include "diagnostic.hpp"
 #include "gaussian_exact.hpp"
 #include "model.hpp"
 #include "record.hpp"
@@ -38,8 +38,7 @@ struct EntanglementInitial {
   std::int64_t line = 0;
 };
 
-struct EntanglementSpec {
-  bool enabled = false;        // the table is present
+struct EntanglementSpec : DiagnosticSpec {
   std::int64_t periods = 0;    // T: curves at t = 0..T
   std::int64_t offset = 0;     // first site of the integer (block) regions
   std::vector<EntanglementRegion> regions;
@@ -52,29 +51,52 @@ struct EntanglementSpec {
   std::int64_t max_precision_bits = 1 << 15;  // root precision the Gaussian kernel may rise to
 };
 
-// Reads the optional [entanglement] table of `text` (which parse_config has
-// already parsed successfully into `c`, sweeps included). Absent: a spec with
-// enabled = false. Throws ConfigError "SOURCE:LINE: entanglement.key: what"
-// (one line) for every bad key or value, and for a region or initial site
-// that no lattice of the run can hold.
-EntanglementSpec parse_entanglement(const std::string& text, const std::string& source, const Config& c);
+// The diagnostic itself. Its table: the optional [entanglement]; parse
+// throws ConfigError "SOURCE:LINE: entanglement.key: what" (one line) for
+// every bad key or value, and for a region or initial site that no lattice
+// of the run can hold. compute never throws: a kernel failure, or a
+// Gaussian radius that misses its target, is reported as its failure (status
+// diagnostic_failed); the other curves are still computed. It uses
+// r.exponents (for Lambda_|A|). Points whose gates are redrawn every period
+// get NaN curves and region rates (the kernels take one time-periodic
+// circuit). Every ratio over a rate follows rate_ratio (kernels/bounds.hpp).
+const Diagnostic& entanglement_diagnostic();
 
-// The /entanglement coordinates of a run (present = false without the table).
-EntanglementAxes entanglement_axes(const Config& c);
+// The parsed [entanglement] table of a config.
+const EntanglementSpec& entanglement_spec(const Config& c);
 
-// Fills the /entanglement fields of `r` for point `p` (nothing without the
-// table). Never throws: a kernel failure, or a Gaussian radius that misses its
-// target, turns an ok status into EntanglementFailed with a message; the
-// other curves are still computed. Uses r.exponents (for Lambda_|A|), so it
-// runs after the spectrum. Points whose gates are redrawn every period get
-// NaN curves and region rates (the kernels take one time-periodic circuit).
-// Every ratio over a rate follows rate_ratio (kernels/bounds.hpp).
-void compute_entanglement(const Config& c, const Point& p, PointRecord& r);
+// One point's /entanglement values, row-major over ([N], region, t) with N
+// over stabilizer_dims, region over the regions and t = 0..T; NaN (int64:
+// -1) where a region does not fit. A vector is empty when not computed.
+struct EntanglementValues {
+  double ent_wall_time = kNaN;                   // seconds in the entanglement kernels
+  std::vector<std::int64_t> ent_cuts;            // [region] boundary cuts c of A at this point
+  std::vector<double> ent_lyapunov_rate;         // [region] Lambda_|A|: the asymptotic rate of a generic region, not a bound
+  std::vector<double> ent_region_rate;           // [region] late rate of ln vol(P_A S^t) (kernels/region_rate.hpp)
+  std::vector<double> gauss_entropy;             // [region][t] midpoint of S_A(t), nats
+  std::vector<double> gauss_radius;              // [region][t] certified radius
+  std::vector<std::int64_t> gauss_failures;      // [region] t's whose radius missed the target
+  std::vector<double> gauss_slope;               // [region] late-time least-squares slope
+  std::vector<double> gauss_slope_over_lyapunov; // [region] rate_ratio(slope, Lambda_|A|)
+  std::vector<double> gauss_slope_over_region_rate;  // [region] rate_ratio(slope, region rate)
+  std::vector<double> gauss_saturation_value;    // [region] max_t S_A(t)
+  std::vector<double> gauss_saturation_time;     // [region] first t with S_A(t) >= 0.99 max
+  std::vector<double> stab_entropy;              // [N][region][t]
+  std::vector<double> stab_slope, stab_slope_over_lyapunov, stab_slope_over_lightcone;  // [N][region]
+  std::vector<double> stab_saturation_value, stab_saturation_time;                      // [N][region]
+  std::vector<double> stab_cap, stab_lightcone_rate;  // [N][region] the two bounds
+  std::vector<std::int64_t> stab_violations;     // [N][region] t's above a bound (0 by theorem)
+  std::vector<double> stab_profile;              // [N][k][x] S([0, x)) at t = k stride, x = 0..L
+};
+
+// The /entanglement values of a record of a run of `c` (decoded from
+// r.fields; all empty when the record holds none).
+EntanglementValues entanglement_values(const Config& c, const PointRecord& r);
 
 // The Gaussian kernel's options from the config (radius, precision limit).
 EntropyOptions entropy_options(const EntanglementSpec& E);
 
-// `toral check`: about how long compute_entanglement takes for point `p`
+// `toral check`: about how long the diagnostic's compute takes for point `p`
 // (seconds), and the bytes it needs (its curves in the record plus the
 // largest working set of the kernels: stabilizer_work_bytes and
 // gaussian_work_bytes), by running the kernels on the point itself for
@@ -89,10 +111,6 @@ struct EntanglementEstimate {
   double gaussian_s = 0, stabilizer_s = 0, region_s = 0, bytes = 0;
 };
 EntanglementEstimate estimate_entanglement(const Config& c, const Point& p);
-
-// `toral point`: the /entanglement values of `r` as JSON members (each
-// starting with ",\n  ", to follow the existing members), or a short table.
-void print_entanglement(std::ostream& os, const Config& c, const PointRecord& r, bool json);
 
 // ---- pieces, exposed for tests
 

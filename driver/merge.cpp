@@ -14,7 +14,7 @@ namespace {
 
 bool same_axes(const RunAxes& a, const RunAxes& b) {
   return a.param_names == b.param_names && a.region_sizes == b.region_sizes && a.local_dims == b.local_dims &&
-         a.hist_bins == b.hist_bins && a.bulk_limit == b.bulk_limit && a.entanglement == b.entanglement;
+         a.hist_bins == b.hist_bins && a.bulk_limit == b.bulk_limit;
 }
 
 }  // namespace
@@ -35,8 +35,11 @@ void merge_results(const std::vector<std::string>& inputs, const std::string& ou
     if (d.meta.config_hash != first.meta.config_hash)
       throw ResultFileError(inputs[k] + ": written by a different config (hash " + d.meta.config_hash + ", " +
                             inputs[0] + " has " + first.meta.config_hash + ")");
+    if (d.axes.schema.hash() != first.axes.schema.hash())
+      throw ResultFileError(inputs[k] + ": its diagnostics' schema (hash " + d.axes.schema.hash() + ") differs from " +
+                            inputs[0] + " (hash " + first.axes.schema.hash() + ")");
     if (d.meta.total_points != first.meta.total_points || !same_axes(d.axes, first.axes))
-      throw ResultFileError(inputs[k] + ": its layout (points, parameters, bounds or entanglement axes) differs from " + inputs[0]);
+      throw ResultFileError(inputs[k] + ": its layout (points, parameters or bounds axes) differs from " + inputs[0]);
     for (const auto& r : d.records) {
       if (r.status == static_cast<std::int32_t>(PointStatus::Pending))
         throw ResultFileError(inputs[k] + ": point " + std::to_string(r.index) +

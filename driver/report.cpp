@@ -16,6 +16,55 @@
 
 namespace toral {
 
+namespace {
+
+// The diagnostics' coordinates and values of `r` as JSON members, keyed by
+// dataset path (driver/diagnostic.hpp): 1-D coordinates and fields as flat
+// arrays of the held values, scalar fields as numbers, 2-D integer
+// coordinates as nested rows without their -1 padding.
+void print_diagnostics_json(std::ostream& os, const Config& c, const PointRecord& r) {
+  const Schema s = run_schema(c);
+  auto m = [&](const std::string& path, const std::string& value) { os << ",\n  \"" << path << "\": " << value; };
+  for (const CoordDecl& cd : s.coords) {
+    if (cd.dims.size() == 2 && cd.type == Elem::I64) {
+      const std::size_t w = s.axis(cd.dims[1])->size();
+      std::string rows = "[";
+      for (std::size_t i = 0; w > 0 && i * w < cd.i.size(); ++i) {
+        std::vector<std::int64_t> row;
+        for (std::size_t j = 0; j < w; ++j)
+          if (cd.i[i * w + j] != -1) row.push_back(cd.i[i * w + j]);
+        rows += (i ? ", " : "") + json_array(row);
+      }
+      m(cd.path, rows + "]");
+    } else {
+      m(cd.path, cd.type == Elem::F64 ? json_array(cd.f) : json_array(cd.i));
+    }
+  }
+  for (std::size_t k = 0; k < s.fields.size(); ++k) {
+    const FieldDecl& fd = s.fields[k];
+    static const FieldValue none;
+    const FieldValue& v = k < r.fields.size() ? r.fields[k] : none;
+    if (fd.dims.empty() && fd.type == Elem::F64) m(fd.path, json_num(v.f.empty() ? kNaN : v.f[0]));
+    else if (fd.dims.empty()) m(fd.path, v.i.empty() ? std::string("-1") : std::to_string(v.i[0]));
+    else m(fd.path, fd.type == Elem::F64 ? json_array(v.f) : json_array(v.i));
+  }
+}
+
+// Each enabled diagnostic's own table (Diagnostic::print_text).
+void print_diagnostics_text(std::ostream& os, const Config& c, const PointRecord& r) {
+  std::vector<std::size_t> off;
+  (void)run_schema(c, &off);
+  const auto& reg = diagnostics();
+  for (std::size_t k = 0; k < reg.size(); ++k) {
+    if (!diagnostic_spec(c, k).enabled) continue;
+    std::vector<FieldValue> slice(off[k + 1] - off[k]);
+    for (std::size_t j = off[k]; j < off[k + 1] && j < r.fields.size(); ++j) slice[j - off[k]] = r.fields[j];
+    reg[k]->print_text(os, c, slice);
+  }
+}
+
+}  // namespace
+
 void print_run_summary(MPI_Comm comm, const Config& c, const ParamTable&, const std::vector<PointRecord>& local,
                        std::int64_t total, double seconds, const std::string& output, double busy) {
   int rank = 0, size = 1;
@@ -135,7 +184,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
        << ",\n  \"/bounds/ehrenfest_time\": " << json_array(r.ehrenfest_time)
        << ",\n  \"/bounds/saturation_lyapunov\": " << json_array(r.saturation_lyapunov)
        << ",\n  \"/bounds/saturation_lightcone\": " << json_array(r.saturation_lightcone);
-    print_entanglement(os, c, r, true);  // /entanglement/...: driver/entangle.cpp
+    print_diagnostics_json(os, c, r);  // the diagnostics' datasets (driver/diagnostic.hpp)
     os << "\n}\n";
     return;
   }
@@ -146,7 +195,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
     os << "  INACCURATE (status 8, values kept): " << r.message << "\n";
   } else if (r.status != 0) {
     os << "  FAILED (status " << r.status << "): " << r.message << "\n";
-    print_entanglement(os, c, r, false);
+    print_diagnostics_text(os, c, r);
     return;
   }
   os << "  method              " << method_name(static_cast<Method>(r.method)) << " (" << num(r.wall_time, 3)
@@ -181,7 +230,7 @@ void print_point(std::ostream& os, const Config& c, const ParamTable& t, const P
   os << "    " << std::setw(6) << "N" << std::setw(14) << "Ehrenfest t" << "\n";
   for (std::size_t j = 0; j < nn; ++j)
     os << "    " << std::setw(6) << c.bounds.local_dims[j] << std::setw(14) << num(r.ehrenfest_time[j], 6) << "\n";
-  print_entanglement(os, c, r, false);  // driver/entangle.cpp
+  print_diagnostics_text(os, c, r);  // driver/diagnostic.hpp
 }
 
 namespace {
@@ -238,8 +287,9 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   struct Class {
     long long count = 0;
     double seconds = 0, bytes = 0, flops = 0;
-    double ent_seconds = 0;  // exact entanglement curves, probed on the class's first point
-    double ent_bytes = 0;    // their share of `bytes`
+    std::vector<double> diag_seconds;  // per enabled diagnostic, probed on the class's first point
+    double ent_seconds = 0;            // their sum
+    double ent_bytes = 0;              // their share of `bytes`
   };
   // (sweep, L, boundary, method) -> cost class
   std::map<std::tuple<int, std::int64_t, int, std::string>, Class> classes;
@@ -255,10 +305,12 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     const std::string name = !ok ? "unsolvable" : method_name(m);
     Class& k = classes[{p.sweep, p.L, static_cast<int>(p.boundary), name}];
     if (++k.count > 1) continue;  // every point of a class costs about the same: cost its first
-    if (c.entanglement.enabled) {
-      const EntanglementEstimate e = estimate_entanglement(c, p);
-      k.ent_seconds = e.gaussian_s + e.stabilizer_s + e.region_s;
-      k.ent_bytes = e.bytes;
+    for (std::size_t d = 0; d < diagnostics().size(); ++d) {
+      if (!diagnostic_spec(c, d).enabled) continue;
+      const DiagnosticEstimate e = diagnostics()[d]->estimate(c, p);
+      k.diag_seconds.push_back(e.seconds);
+      k.ent_seconds += e.seconds;
+      k.ent_bytes += e.bytes;
     }
     const double ent_bytes = k.ent_bytes;
     const double L = static_cast<double>(p.L);
@@ -287,7 +339,13 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   os << "  " << std::left << std::setw(16) << "sweep" << std::right << std::setw(10) << "L" << std::setw(10)
      << "boundary" << std::setw(12) << "method"
      << std::setw(9) << "points" << std::setw(12) << "s/point" << std::setw(12) << "memory" << std::setw(12) << "Gflop";
-  if (c.entanglement.enabled) os << std::setw(14) << "entangle s";
+  std::string diag_names;  // the diagnostics, for the memory refusal
+  for (std::size_t d = 0; d < diagnostics().size(); ++d)
+    if (diagnostic_spec(c, d).enabled) {
+      const std::string col = diagnostics()[d]->table() + " s";
+      os << std::setw(static_cast<int>(std::max<std::size_t>(14, col.size() + 2))) << col;
+      diag_names += (diag_names.empty() ? "" : ", ") + diagnostics()[d]->table();
+    }
   os << "\n";
   double total_s = 0, total_flops = 0, worst = 0;
   long long unsolvable = 0;
@@ -299,7 +357,13 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
     os << "  " << std::left << std::setw(16) << c.sweeps[static_cast<std::size_t>(sw)].name << std::right << std::setw(10)
        << L << std::setw(10) << bcname << std::setw(12) << name << std::setw(9) << k.count << std::setw(12) << num(k.seconds, 3) << std::setw(12)
        << bytes_str(k.bytes) << std::setw(12) << num(k.flops * k.count / 1e9, 3);
-    if (c.entanglement.enabled) os << std::setw(14) << num(k.ent_seconds, 3);
+    {
+      std::size_t i = 0;
+      for (std::size_t d = 0; d < diagnostics().size(); ++d)
+        if (diagnostic_spec(c, d).enabled && i < k.diag_seconds.size())
+          os << std::setw(static_cast<int>(std::max<std::size_t>(14, diagnostics()[d]->table().size() + 4)))
+             << num(k.diag_seconds[i++], 3);
+    }
     os << "\n";
     if (name == "unsolvable") {
       unsolvable += k.count;
@@ -330,7 +394,7 @@ void print_check(std::ostream& os, const Config& c, double memory_gb) {
   if (worst > memory_gb * 1024 * 1024 * 1024)
     throw ConfigError(c.source + ": " + worst_where + " need about " + bytes_str(worst) + " each, more than " +
                       "--memory-per-rank " + num(memory_gb, 3) + " GiB (" +
-                      (worst_is_entanglement ? "mostly the entanglement kernels: fewer sites, stabilizer_dims or periods"
+                      (worst_is_entanglement ? "mostly the diagnostics (" + diag_names + "): fewer sites or a smaller table"
                                              : "lower spectrum.dense_max") +
                       ", or use more memory)");
 }

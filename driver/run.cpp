@@ -124,7 +124,7 @@ FileParts file_parts(const Config& c, const ParamTable& table, std::int64_t rank
   f.axes.local_dims = c.bounds.local_dims;
   f.axes.hist_bins = c.spectrum.summary.bins;
   f.axes.bulk_limit = c.spectrum.bulk_limit;
-  f.axes.entanglement = entanglement_axes(c);  // driver/entangle.hpp
+  f.axes.schema = run_schema(c);  // the diagnostics' declarations (driver/diagnostics.cpp)
   f.meta.toral_version = TORAL_VERSION;
   f.meta.config_text = c.text;
   f.meta.config_source = c.source;
@@ -202,6 +202,9 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
           if (j.config_hash != parts.meta.config_hash)
             verdict = jpath + ": --resume refused: the journal was written by a different config (hash " +
                       j.config_hash + ", this config " + parts.meta.config_hash + ")";
+          else if (j.schema_hash != parts.axes.schema.hash())
+            verdict = jpath + ": --resume refused: the journal holds diagnostics of another schema (hash " +
+                      j.schema_hash + ", this toral and config " + parts.axes.schema.hash() + ")";
           else
             done = std::move(j.records), from_journal = true;
         } else if (o.resume && output_exists(o.output)) {
@@ -209,6 +212,9 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
           if (d.meta.config_hash != parts.meta.config_hash)
             verdict = o.output + ": --resume refused: the file was written by a different config (hash " +
                       d.meta.config_hash + ", this config " + parts.meta.config_hash + ")";
+          else if (d.axes.schema.hash() != parts.axes.schema.hash())
+            verdict = o.output + ": --resume refused: the file holds diagnostics of another schema (hash " +
+                      d.axes.schema.hash() + ", this toral and config " + parts.axes.schema.hash() + ")";
           else if (d.meta.shard != parts.meta.shard)
             verdict = o.output + ": --resume refused: the file holds shard \"" + d.meta.shard +
                       "\", this run is shard \"" + parts.meta.shard + "\"";
@@ -235,12 +241,14 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
   }
 
   install_stop_handlers();
-  // Distributed points (krylov, tangent) run on rank groups of consecutive
-  // ranks; the decision is made from the config alone, the same everywhere.
+  // Distributed points (krylov, tangent, or a diagnostic that asks for
+  // several ranks) run on rank groups of consecutive ranks; the decision is
+  // made from the config alone, the same everywhere.
   std::vector<char> distributed(points.size(), 0);
   bool any_distributed = false;
   for (std::int64_t i : mine) {
-    distributed[static_cast<std::size_t>(i)] = distributed_method(planned_method(c, points[static_cast<std::size_t>(i)]));
+    const Point& pt = points[static_cast<std::size_t>(i)];
+    distributed[static_cast<std::size_t>(i)] = distributed_method(planned_method(c, pt)) || diagnostic_ranks(c, pt) > 1;
     any_distributed = any_distributed || distributed[static_cast<std::size_t>(i)];
   }
   struct Groups {
@@ -279,7 +287,7 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
     if (from_journal)
       journal.open_append(jpath);
     else
-      journal.open_new(jpath, parts.meta.config_hash, parts.meta.total_points);
+      journal.open_new(jpath, parts.meta.config_hash, parts.meta.total_points, parts.axes.schema.hash());
 
     std::vector<PointRecord> all = done;  // every finished record of this run
     std::int64_t failed = 0;
