@@ -3,6 +3,7 @@
 #include <gtest/gtest.h>
 
 #include "config.hpp"
+#include "entangle.hpp"
 #include "default_config.hpp"
 #include "sweep.hpp"
 
@@ -261,7 +262,7 @@ gaussian = "squeezed"
 squeeze = 2
 )"),
                                 "t.toml");
-  const EntanglementSpec& e = c.entanglement;
+  const EntanglementSpec& e = entanglement_spec(c);
   ASSERT_TRUE(e.enabled);
   EXPECT_EQ(e.periods, 20);
   EXPECT_TRUE(e.gaussian);  // the default
@@ -285,16 +286,25 @@ squeeze = 2
   EXPECT_EQ(s[4].kind, LocalState::Position);  // uncovered: position
   EXPECT_EQ(s[5].kind, LocalState::Line);
   EXPECT_EQ(stabilizer_initial(e, 4).size(), 4u);  // sites beyond a smaller L are dropped
-  const EntanglementAxes ax = entanglement_axes(c);
-  EXPECT_TRUE(ax.present);
-  EXPECT_EQ(ax.region_size, (std::vector<std::int64_t>{1, 3, 3}));
-  EXPECT_EQ(ax.region_sites, (std::vector<std::int64_t>{2, -1, -1, 2, 3, 4, 0, 5, 7}));
-  EXPECT_EQ(ax.profile_stride, 5);
-  EXPECT_EQ(ax.profile_sites, 17);  // largest L + 1
-  EXPECT_EQ(ax.profile_times(), 5u);
+  // the declared schema (driver/diagnostic.hpp): coordinates from the table
+  const Schema sc = run_schema(c);
+  EXPECT_EQ(sc.validate(), "");
+  auto coord = [&](const std::string& path) {
+    for (const auto& x : sc.coords)
+      if (x.path == path) return x.i;
+    ADD_FAILURE() << "no coordinate " << path;
+    return std::vector<std::int64_t>{};
+  };
+  EXPECT_EQ(coord("/entanglement/region_size"), (std::vector<std::int64_t>{1, 3, 3}));
+  EXPECT_EQ(coord("/entanglement/region_sites"), (std::vector<std::int64_t>{2, -1, -1, 2, 3, 4, 0, 5, 7}));
+  EXPECT_EQ(coord("/entanglement/stabilizer/profile_t"), (std::vector<std::int64_t>{0, 5, 10, 15, 20}));
+  EXPECT_EQ(coord("/entanglement/stabilizer/cut").size(), 17u);  // x = 0 .. largest L
+  const std::int64_t prof = sc.field_index("/entanglement/stabilizer/profile");
+  ASSERT_GE(prof, 0);
+  EXPECT_TRUE(sc.fields[static_cast<std::size_t>(prof)].is_ragged(2));
   // absent table: nothing
-  EXPECT_FALSE(parse_config(kBase, "t.toml").entanglement.enabled);
-  EXPECT_FALSE(entanglement_axes(parse_config(kBase, "t.toml")).present);
+  EXPECT_FALSE(entanglement_spec(parse_config(kBase, "t.toml")).enabled);
+  EXPECT_TRUE(run_schema(parse_config(kBase, "t.toml")).empty());
 }
 
 TEST(Config, EntanglementLocatedErrors) {

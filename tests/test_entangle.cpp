@@ -53,12 +53,21 @@ double vacuum_slope_tolerance(std::size_t k, std::int64_t T) {
   return static_cast<double>(k) * (1 - std::log(2.0)) * up / den;
 }
 
+// A point's record with its /entanglement values decoded from r.fields.
+struct Rec : PointRecord, EntanglementValues {};
+Rec with_values(const Config& c, const PointRecord& r) {
+  Rec x;
+  static_cast<PointRecord&>(x) = r;
+  static_cast<EntanglementValues&>(x) = entanglement_values(c, r);
+  return x;
+}
+
 // Every point of a config, in expansion order.
-std::vector<PointRecord> run_points(const std::string& text) {
+std::vector<Rec> run_points(const std::string& text) {
   const Config c = parse_config(text, "t.toml");
   const ParamTable t = param_table(c);
-  std::vector<PointRecord> out;
-  for (const Point& p : expand(c)) out.push_back(compute_point(c, t, p));
+  std::vector<Rec> out;
+  for (const Point& p : expand(c)) out.push_back(with_values(c, compute_point(c, t, p)));
   return out;
 }
 }  // namespace
@@ -133,7 +142,7 @@ profile_stride = 8
                                 "t.toml");
   const ParamTable t = param_table(c);
   const Point p = expand(c).at(0);
-  const PointRecord r = compute_point(c, t, p);
+  const Rec r = with_values(c, compute_point(c, t, p));
   ASSERT_EQ(r.status, 0) << r.message;
   const double rate = 2.0 * std::log((3.0 + std::sqrt(5.0)) / 2.0);
   ASSERT_EQ(r.gauss_slope.size(), 3u);
@@ -192,7 +201,7 @@ stabilizer_dims = [5]
   const auto pts = expand(c);
   ASSERT_EQ(pts.size(), 4u);
   for (const auto& p : pts) {
-    const PointRecord r = compute_point(c, t, p);
+    const Rec r = with_values(c, compute_point(c, t, p));
     SCOPED_TRACE(p.index);
     ASSERT_EQ(r.gauss_entropy.size(), 2u * 5u);
     ASSERT_EQ(r.stab_entropy.size(), 2u * 5u);
@@ -216,7 +225,7 @@ stabilizer_dims = [5]
   }
 }
 
-TEST(Entangle, MissedRadiusTargetMakesTheStatusEntanglementFailed) {
+TEST(Entangle, MissedRadiusTargetMakesTheStatusDiagnosticFailed) {
   // A radius no 64-bit root precision can certify (S_A(t) is hundreds of nats):
   // the curve is kept with its larger radii, the misses are counted, and the
   // ok point becomes status 7 with a message naming the region and the target.
@@ -230,9 +239,9 @@ periods = 30
 regions = [1]
 )";
   const Config c = parse_config(cat + "radius = 1e-200\nmax_precision_bits = 64\n", "t.toml");
-  ASSERT_EQ(c.entanglement.radius, 1e-200);
-  const PointRecord r = compute_point(c, param_table(c), expand(c).at(0));
-  EXPECT_EQ(r.status, 7) << r.message;  // entanglement_failed (io/record.hpp)
+  ASSERT_EQ(entanglement_spec(c).radius, 1e-200);
+  const Rec r = with_values(c, compute_point(c, param_table(c), expand(c).at(0)));
+  EXPECT_EQ(r.status, 7) << r.message;  // diagnostic_failed (io/record.hpp)
   EXPECT_NE(r.message.find("gaussian region 0"), std::string::npos) << r.message;
   EXPECT_NE(r.message.find("1e-200"), std::string::npos) << r.message;
   ASSERT_EQ(r.gauss_failures.size(), 1u);
@@ -243,7 +252,7 @@ regions = [1]
   EXPECT_TRUE(std::isfinite(r.lambda_max));  // the spectrum part is untouched
   // the same point with the default target certifies every t
   const Config ok = parse_config(cat, "t.toml");
-  const PointRecord q = compute_point(ok, param_table(ok), expand(ok).at(0));
+  const Rec q = with_values(ok, compute_point(ok, param_table(ok), expand(ok).at(0)));
   EXPECT_EQ(q.status, 0) << q.message;
   EXPECT_EQ(q.gauss_failures[0], 0);
   for (double x : q.gauss_radius) EXPECT_LE(x, 1e-12);
@@ -267,7 +276,7 @@ regions = [2]
 stabilizer_dims = [3]
 )",
                                 "t.toml");
-  const PointRecord r = compute_point(c, param_table(c), expand(c).at(0));
+  const Rec r = with_values(c, compute_point(c, param_table(c), expand(c).at(0)));
   EXPECT_EQ(r.status, 4) << r.message;
   for (double x : r.gauss_entropy) EXPECT_TRUE(std::isfinite(x));
   for (double x : r.stab_entropy) EXPECT_TRUE(std::isfinite(x));
@@ -300,7 +309,7 @@ b = 2
 periods = 60
 regions = [[0, 1, 4, 5]]
 )");
-  const PointRecord& r = recs.at(0);
+  const Rec& r = recs.at(0);
   ASSERT_EQ(r.status, 0) << r.message;
   const double lam = r.ent_lyapunov_rate[0];
   ASSERT_GT(lam, 0.0);
@@ -334,7 +343,7 @@ b = 1
 periods = 160
 regions = [8, 12]
 )");
-  const PointRecord& r = recs.at(0);
+  const Rec& r = recs.at(0);
   ASSERT_EQ(r.status, 0) << r.message;
   for (std::size_t k = 0; k < 2; ++k) {
     const std::size_t size = k == 0 ? 8 : 12;
@@ -368,7 +377,7 @@ b = 1
 periods = 120
 regions = [8]
 )");
-  const PointRecord& r = recs.at(0);
+  const Rec& r = recs.at(0);
   ASSERT_EQ(r.status, 0) << r.message;
   EXPECT_NEAR(r.gauss_slope[0], r.ent_region_rate[0], vacuum_slope_tolerance(8, T));
   EXPECT_NEAR(r.ent_region_rate[0] / r.ent_lyapunov_rate[0], 1.0, 1e-3);
@@ -397,7 +406,7 @@ stabilizer_dims = [3]
 regions = [4]
 local_dims = [3]
 )");
-  const PointRecord& r = recs.at(0);
+  const Rec& r = recs.at(0);
   ASSERT_EQ(r.status, 0) << r.message;
   EXPECT_EQ(r.ent_lyapunov_rate[0], 0.0);
   EXPECT_EQ(r.lyapunov_rate[0], 0.0);
@@ -430,7 +439,7 @@ stabilizer_dims = [3, 4]
 sites = 0
 stabilizer = "momentum"
 )");
-  const PointRecord& r = recs.at(0);
+  const Rec& r = recs.at(0);
   ASSERT_EQ(r.status, 0) << r.message;
   EXPECT_EQ(r.ent_lyapunov_rate[0], 0.0);
   for (std::size_t j = 0; j < 2; ++j) {

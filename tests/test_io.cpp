@@ -62,17 +62,151 @@ const std::vector<std::int64_t> kRegionSize = {1, 3};
 const std::vector<std::int64_t> kRegionSites = {0, -1, -1, 1, 2, 5};
 const std::vector<std::int64_t> kStabN = {2, 3};
 
-EntanglementAxes make_ent_axes() {
-  EntanglementAxes e;
-  e.present = true;
-  e.periods = kT;
-  e.region_size = kRegionSize;
-  e.region_sites = kRegionSites;
-  e.gaussian = true;
-  e.local_dims = kStabN;
-  e.profile_stride = kStride;
-  e.profile_sites = 9;
-  return e;
+// The diagnostics' part of the synthetic run: a schema declared here the way
+// a diagnostic declares one (driver/diagnostic.hpp), shaped like the exact
+// entanglement output, and the values of each record in a plain struct.
+struct Ent {
+  double ent_wall_time = kNaN;
+  std::vector<std::int64_t> ent_cuts;
+  std::vector<double> ent_lyapunov_rate, ent_region_rate;
+  std::vector<double> gauss_entropy, gauss_radius;
+  std::vector<std::int64_t> gauss_failures;
+  std::vector<double> gauss_slope, gauss_slope_over_lyapunov, gauss_slope_over_region_rate, gauss_saturation_value,
+      gauss_saturation_time;
+  std::vector<double> stab_entropy, stab_slope, stab_slope_over_lyapunov, stab_slope_over_lightcone,
+      stab_saturation_value, stab_saturation_time, stab_cap, stab_lightcone_rate;
+  std::vector<std::int64_t> stab_violations;
+  std::vector<double> stab_profile;  // [N][k][x], x = 0..L of the point (ragged)
+};
+
+struct EntParts {
+  bool gaussian = true, stabilizer = true, profile = true;
+};
+
+struct TSlot {
+  FieldDecl decl;
+  double Ent::*s = nullptr;
+  std::vector<double> Ent::*f = nullptr;
+  std::vector<std::int64_t> Ent::*i = nullptr;
+};
+
+const std::string kTp = "/entanglement/t", kRp = "/entanglement/region_size", kNp = "/entanglement/stabilizer/local_dim",
+                  kKp = "/entanglement/stabilizer/profile_t", kXp = "/entanglement/stabilizer/cut";
+
+std::vector<TSlot> tslots(EntParts e) {
+  std::vector<TSlot> v;
+  auto fd = [](std::string p, Elem t, std::vector<std::string> d, std::string stats = {}) {
+    FieldDecl x;
+    x.path = std::move(p);
+    x.type = t;
+    x.dims = std::move(d);
+    x.units = "u(" + x.path + ")";
+    x.meaning = "m(" + x.path + ")";
+    x.stats = std::move(stats);
+    return x;
+  };
+  v.push_back({fd("/entanglement/wall_time", Elem::F64, {}), &Ent::ent_wall_time});
+  v.push_back({fd("/entanglement/cuts", Elem::I64, {kRp}), nullptr, nullptr, &Ent::ent_cuts});
+  v.push_back({fd("/entanglement/lyapunov_rate", Elem::F64, {kRp}, "entanglement_lyapunov_rate"), nullptr, &Ent::ent_lyapunov_rate});
+  v.push_back({fd("/entanglement/region_rate", Elem::F64, {kRp}), nullptr, &Ent::ent_region_rate});
+  if (e.gaussian) {
+    const std::string g = "/entanglement/gaussian/";
+    v.push_back({fd(g + "entropy", Elem::F64, {kRp, kTp}), nullptr, &Ent::gauss_entropy});
+    v.push_back({fd(g + "radius", Elem::F64, {kRp, kTp}), nullptr, &Ent::gauss_radius});
+    v.push_back({fd(g + "failures", Elem::I64, {kRp}), nullptr, nullptr, &Ent::gauss_failures});
+    v.push_back({fd(g + "slope", Elem::F64, {kRp}, "gaussian_slope"), nullptr, &Ent::gauss_slope});
+    v.push_back({fd(g + "slope_over_lyapunov", Elem::F64, {kRp}), nullptr, &Ent::gauss_slope_over_lyapunov});
+    v.push_back({fd(g + "slope_over_region_rate", Elem::F64, {kRp}), nullptr, &Ent::gauss_slope_over_region_rate});
+    v.push_back({fd(g + "saturation_value", Elem::F64, {kRp}), nullptr, &Ent::gauss_saturation_value});
+    v.push_back({fd(g + "saturation_time", Elem::F64, {kRp}), nullptr, &Ent::gauss_saturation_time});
+  }
+  if (e.stabilizer) {
+    const std::string b = "/entanglement/stabilizer/";
+    v.push_back({fd(b + "entropy", Elem::F64, {kNp, kRp, kTp}), nullptr, &Ent::stab_entropy});
+    for (const auto& [name, m] : std::vector<std::pair<std::string, std::vector<double> Ent::*>>{
+             {"slope", &Ent::stab_slope},
+             {"slope_over_lyapunov", &Ent::stab_slope_over_lyapunov},
+             {"slope_over_lightcone", &Ent::stab_slope_over_lightcone},
+             {"saturation_value", &Ent::stab_saturation_value},
+             {"saturation_time", &Ent::stab_saturation_time},
+             {"cap", &Ent::stab_cap},
+             {"lightcone_rate", &Ent::stab_lightcone_rate}})
+      v.push_back({fd(b + name, Elem::F64, {kNp, kRp}, name == "slope" ? "stabilizer_slope" : ""), nullptr, m});
+    v.push_back({fd(b + "violations", Elem::I64, {kNp, kRp}), nullptr, nullptr, &Ent::stab_violations});
+    if (e.profile) {
+      FieldDecl p = fd(b + "profile", Elem::F64, {kNp, kKp, kXp});
+      p.ragged = {false, false, true};
+      p.attrs = {AttrDecl::of("stride", kStride)};
+      v.push_back({p, nullptr, &Ent::stab_profile});
+    }
+  }
+  return v;
+}
+
+CoordDecl tcoord(std::string path, std::vector<std::string> dims, std::vector<std::int64_t> v) {
+  CoordDecl c;
+  c.path = std::move(path);
+  c.type = Elem::I64;
+  c.dims = std::move(dims);
+  c.i = std::move(v);
+  c.units = "u(" + c.path + ")";
+  c.meaning = "m(" + c.path + ")";
+  return c;
+}
+
+Schema make_schema(EntParts e = {}) {
+  Schema s;
+  s.groups.push_back({"/entanglement", "exact entanglement (test)", {AttrDecl::of("saturation_fraction", 0.99)}});
+  if (e.gaussian) s.groups.push_back({"/entanglement/gaussian", "gaussian (test)", {}});
+  if (e.stabilizer) s.groups.push_back({"/entanglement/stabilizer", "stabilizer (test)", {}});
+  s.coords.push_back(tcoord(kTp, {kTp}, {0, 1, 2, 3}));
+  s.coords.push_back(tcoord(kRp, {kRp}, kRegionSize));
+  s.coords.push_back(tcoord("/entanglement/site_slot", {"/entanglement/site_slot"}, {0, 1, 2}));
+  s.coords.push_back(tcoord("/entanglement/region_sites", {kRp, "/entanglement/site_slot"}, kRegionSites));
+  if (e.stabilizer) {
+    s.coords.push_back(tcoord(kNp, {kNp}, kStabN));
+    if (e.profile) {
+      s.coords.push_back(tcoord(kKp, {kKp}, {0, 2}));
+      s.coords.push_back(tcoord(kXp, {kXp}, {0, 1, 2, 3, 4, 5, 6, 7, 8}));
+    }
+  }
+  for (auto& t : tslots(e)) s.fields.push_back(t.decl);
+  return s;
+}
+
+// The record's field values for schema `s` (from the slots of its paths).
+void pack(const Ent& x, const Schema& s, PointRecord& r) {
+  const std::vector<TSlot> all = tslots({});
+  r.fields.clear();
+  for (std::size_t k = 0; k < s.fields.size(); ++k) {
+    const auto it = std::find_if(all.begin(), all.end(), [&](const TSlot& t) { return t.decl.path == s.fields[k].path; });
+    FieldValue v;
+    if (it->s) {
+      v.f = {x.*(it->s)};
+    } else {
+      const std::size_t n = it->f ? (x.*(it->f)).size() : (x.*(it->i)).size();
+      if (n > 0) {
+        if (it->f) v.f = x.*(it->f);
+        else v.i = x.*(it->i);
+        v.shape = s.inner_shape(k);
+        if (s.fields[k].is_ragged(2)) v.shape[2] = static_cast<std::int64_t>(n) / (v.shape[0] * v.shape[1]);
+      }
+    }
+    r.fields.push_back(std::move(v));
+  }
+}
+
+// The values of `r` back (an absent field: empty).
+Ent ent(const PointRecord& r, const Schema& s = make_schema()) {
+  Ent x;
+  const std::vector<TSlot> all = tslots({});
+  for (std::size_t k = 0; k < s.fields.size() && k < r.fields.size(); ++k) {
+    const auto it = std::find_if(all.begin(), all.end(), [&](const TSlot& t) { return t.decl.path == s.fields[k].path; });
+    if (it->s) x.*(it->s) = r.fields[k].f.empty() ? kNaN : r.fields[k].f[0];
+    else if (it->f) x.*(it->f) = r.fields[k].f;
+    else x.*(it->i) = r.fields[k].i;
+  }
+  return x;
 }
 
 RunAxes make_axes(bool bulk = true, bool ent = true) {
@@ -84,21 +218,13 @@ RunAxes make_axes(bool bulk = true, bool ent = true) {
   a.local_dims = kN;
   a.hist_bins = kBins;
   a.bulk_limit = bulk;
-  if (ent) a.entanglement = make_ent_axes();
+  if (ent) a.schema = make_schema();
   return a;
 }
 
 // The record without its /entanglement fields (a run without the table).
 PointRecord without_entanglement(PointRecord r) {
-  const PointRecord d;
-  r.ent_wall_time = d.ent_wall_time;
-  for (auto* v : {&r.ent_cuts, &r.gauss_failures, &r.stab_violations}) v->clear();
-  for (auto* v : {&r.ent_lyapunov_rate, &r.ent_region_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
-                  &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate, &r.gauss_saturation_value,
-                  &r.gauss_saturation_time, &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov,
-                  &r.stab_slope_over_lightcone, &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap,
-                  &r.stab_lightcone_rate, &r.stab_profile})
-    v->clear();
+  r.fields.clear();
   return r;
 }
 
@@ -192,41 +318,43 @@ PointRecord make_record(std::int64_t i) {
     const std::int64_t L = r.params[1];
     const std::size_t nr = kRegionSize.size(), nt = kT + 1, nn = kStabN.size();
     const std::size_t nk = kT / kStride + 1, w = static_cast<std::size_t>(L) + 1;
-    r.ent_wall_time = 0.01 * x + 0.001;
+    Ent e;
+    e.ent_wall_time = 0.01 * x + 0.001;
     for (std::size_t k = 0; k < nr; ++k) {
       const bool fits = k == 0 || L >= 6;
       const double kk = static_cast<double>(k);
-      r.ent_cuts.push_back(fits ? static_cast<std::int64_t>(2 + k) : -1);
-      r.ent_lyapunov_rate.push_back(fits ? x + 0.5 * kk : kNaN);
-      r.ent_region_rate.push_back(fits ? x + 0.25 * kk : kNaN);
+      e.ent_cuts.push_back(fits ? static_cast<std::int64_t>(2 + k) : -1);
+      e.ent_lyapunov_rate.push_back(fits ? x + 0.5 * kk : kNaN);
+      e.ent_region_rate.push_back(fits ? x + 0.25 * kk : kNaN);
       for (std::size_t t = 0; t < nt; ++t) {
-        r.gauss_entropy.push_back(fits ? 0.1 * static_cast<double>(t) * (kk + 1) + x : kNaN);
-        r.gauss_radius.push_back(fits ? 1e-13 * static_cast<double>(t + 1) : kNaN);
+        e.gauss_entropy.push_back(fits ? 0.1 * static_cast<double>(t) * (kk + 1) + x : kNaN);
+        e.gauss_radius.push_back(fits ? 1e-13 * static_cast<double>(t + 1) : kNaN);
       }
-      r.gauss_failures.push_back(fits ? (i == 4 && k == 0 ? 1 : 0) : -1);
-      r.gauss_slope.push_back(fits ? 0.1 * (kk + 1) : kNaN);
-      r.gauss_slope_over_lyapunov.push_back(fits ? 0.1 * (kk + 1) / (x + 0.5 * kk) : kNaN);
-      r.gauss_slope_over_region_rate.push_back(fits ? 0.1 * (kk + 1) / (x + 0.25 * kk) : kNaN);
-      r.gauss_saturation_value.push_back(fits ? 0.3 * (kk + 1) + x : kNaN);
-      r.gauss_saturation_time.push_back(fits ? 3.0 : kNaN);
+      e.gauss_failures.push_back(fits ? (i == 4 && k == 0 ? 1 : 0) : -1);
+      e.gauss_slope.push_back(fits ? 0.1 * (kk + 1) : kNaN);
+      e.gauss_slope_over_lyapunov.push_back(fits ? 0.1 * (kk + 1) / (x + 0.5 * kk) : kNaN);
+      e.gauss_slope_over_region_rate.push_back(fits ? 0.1 * (kk + 1) / (x + 0.25 * kk) : kNaN);
+      e.gauss_saturation_value.push_back(fits ? 0.3 * (kk + 1) + x : kNaN);
+      e.gauss_saturation_time.push_back(fits ? 3.0 : kNaN);
     }
     for (std::size_t n = 0; n < nn; ++n)
       for (std::size_t k = 0; k < nr; ++k) {
         const bool fits = k == 0 || L >= 6;
         const double lnN = std::log(static_cast<double>(kStabN[n]));
         for (std::size_t t = 0; t < nt; ++t)
-          r.stab_entropy.push_back(fits ? lnN * static_cast<double>(std::min<std::size_t>(t, k + 1)) : kNaN);
-        r.stab_slope.push_back(fits ? 0.0 : kNaN);
-        r.stab_slope_over_lyapunov.push_back(fits ? 0.0 : kNaN);
-        r.stab_slope_over_lightcone.push_back(fits ? 0.0 : kNaN);
-        r.stab_saturation_value.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
-        r.stab_saturation_time.push_back(fits ? static_cast<double>(k + 1) : kNaN);
-        r.stab_cap.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
-        r.stab_lightcone_rate.push_back(fits ? 2.0 * static_cast<double>(2 + k) * lnN : kNaN);
-        r.stab_violations.push_back(fits ? 0 : -1);
+          e.stab_entropy.push_back(fits ? lnN * static_cast<double>(std::min<std::size_t>(t, k + 1)) : kNaN);
+        e.stab_slope.push_back(fits ? 0.0 : kNaN);
+        e.stab_slope_over_lyapunov.push_back(fits ? 0.0 : kNaN);
+        e.stab_slope_over_lightcone.push_back(fits ? 0.0 : kNaN);
+        e.stab_saturation_value.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
+        e.stab_saturation_time.push_back(fits ? static_cast<double>(k + 1) : kNaN);
+        e.stab_cap.push_back(fits ? lnN * static_cast<double>(k + 1) : kNaN);
+        e.stab_lightcone_rate.push_back(fits ? 2.0 * static_cast<double>(2 + k) * lnN : kNaN);
+        e.stab_violations.push_back(fits ? 0 : -1);
       }
     for (std::size_t q = 0; q < nn * nk; ++q)
-      for (std::size_t xx = 0; xx < w; ++xx) r.stab_profile.push_back(0.5 * x + static_cast<double>(q) + 0.01 * static_cast<double>(xx));
+      for (std::size_t xx = 0; xx < w; ++xx) e.stab_profile.push_back(0.5 * x + static_cast<double>(q) + 0.01 * static_cast<double>(xx));
+    pack(e, make_schema(), r);
   }
   return r;
 }
@@ -332,6 +460,15 @@ std::int64_t attr_int(hid_t f, const std::string& obj, const std::string& name) 
   h5::Object o(H5Oopen(f, obj.c_str(), H5P_DEFAULT), H5Oclose, "test", obj);
   return h5::read_attr_int(o, name);
 }
+double attr_real(hid_t f, const std::string& obj, const std::string& name) {
+  h5::Object o(H5Oopen(f, obj.c_str(), H5P_DEFAULT), H5Oclose, "test", obj);
+  return h5::read_attr_double(o, name);
+}
+// The dimension scales attached to each dimension of a dataset (absolute paths).
+std::vector<std::string> scales_of(hid_t f, const std::string& path) {
+  h5::Dataset d(H5Dopen2(f, path.c_str(), H5P_DEFAULT), H5Dclose, "test", path);
+  return h5::scale_names(d);
+}
 
 // Expected float64 dataset of shape (P, inner...) whose row i is row(i).
 void expect_f64(hid_t f, const std::string& path, std::vector<hsize_t> dims,
@@ -424,14 +561,14 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   ASSERT_GE(rf.id, 0) << "cannot open " << path;
   const hid_t f = rf.id;
   auto recs = all_records(P);
-  if (!ax.entanglement.present)
+  if (ax.schema.empty())
     for (auto& r : recs) r = without_entanglement(r);
   const hsize_t hP = static_cast<hsize_t>(P);
   const std::size_t nl = ax.region_sizes.size(), nn = ax.local_dims.size();
 
   // root attributes
   EXPECT_EQ(attr_string(f, "/", "toral_version"), meta.toral_version);
-  EXPECT_EQ(attr_int(f, "/", "layout_version"), 2);
+  EXPECT_EQ(attr_int(f, "/", "layout_version"), 3);
   EXPECT_EQ(attr_string(f, "/", "config"), meta.config_text);
   EXPECT_EQ(attr_string(f, "/", "config_source"), meta.config_source);
   EXPECT_EQ(attr_string(f, "/", "created"), meta.created);
@@ -469,7 +606,7 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[0], "ok");
   EXPECT_EQ(attr_strings(f, "/points/status", "labels").size(), 9u);
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[6], "pending");
-  EXPECT_EQ(attr_strings(f, "/points/status", "labels")[7], "entanglement_failed");
+  EXPECT_EQ(attr_strings(f, "/points/status", "labels")[7], "diagnostic_failed");
   EXPECT_EQ(attr_strings(f, "/points/status", "labels")[8], "inaccurate");
   {
     ASSERT_TRUE(link_exists(f, "/points/message"));
@@ -563,69 +700,76 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
   expect_f64(f, "/bounds/saturation_lyapunov", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lyapunov, nl * nn); }, recs);
   expect_f64(f, "/bounds/saturation_lightcone", {hP, nl, nn}, [nl, nn](const PointRecord& r) { return pad(r.saturation_lightcone, nl * nn); }, recs);
 
-  // /entanglement
-  const EntanglementAxes& e = ax.entanglement;
-  EXPECT_EQ(link_exists(f, "/entanglement"), e.present);
+  // Named dimensions of the core datasets (dimension scales).
+  EXPECT_EQ(scales_of(f, "/chaos/exponents"), (std::vector<std::string>{"/point", "/chaos/exponent"}));
+  EXPECT_EQ(scales_of(f, "/chaos/histogram/edges"), (std::vector<std::string>{"/point", "/chaos/histogram/edge"}));
+  EXPECT_EQ(scales_of(f, "/bounds/hilbert_cap"),
+            (std::vector<std::string>{"/point", "/bounds/region_size", "/bounds/local_dim"}));
+  EXPECT_EQ(scales_of(f, "/bounds/ehrenfest_time"), (std::vector<std::string>{"/point", "/bounds/local_dim"}));
+  EXPECT_EQ(scales_of(f, "/points/message"), (std::vector<std::string>{"/point"}));
+  EXPECT_EQ(scales_of(f, "/chaos/solver/ranks"), (std::vector<std::string>{"/point"}));
+  {
+    std::vector<std::int64_t> idx;
+    for (const auto& r : recs) idx.push_back(r.index);
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/point", H5T_NATIVE_INT64), idx);
+  }
+
+  // The diagnostics' datasets: what the test schema declares, each row the
+  // record's value padded (NaN / -1), a ragged dim padded past its extent.
+  const Schema& sc = ax.schema;
+  EXPECT_EQ(link_exists(f, "/entanglement"), !sc.empty());
   std::size_t ent_count = 0;
-  if (e.present) {
-    const hsize_t hr = e.regions(), ht = e.times(), hn = e.local_dims.size(), hk = e.profile_times();
-    const std::size_t r_ = hr, t_ = ht, n_ = hn, k_ = hk, W = static_cast<std::size_t>(e.profile_sites);
-    {
-      std::vector<std::int64_t> t(t_);
-      for (std::size_t k = 0; k < t_; ++k) t[k] = static_cast<std::int64_t>(k);
-      EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/t", H5T_NATIVE_INT64), t);
-    }
-    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_size", H5T_NATIVE_INT64), e.region_size);
-    EXPECT_EQ(shape_of(f, "/entanglement/region_sites"), (std::vector<hsize_t>{hr, 3}));
-    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_sites", H5T_NATIVE_INT64), e.region_sites);
+  {
+    h5::Object root(H5Oopen(f, "/", H5P_DEFAULT), H5Oclose, path, "/");
+    EXPECT_EQ(h5::read_attr_string(root, "schema"), sc.text());
+    EXPECT_EQ(h5::read_attr_string(root, "schema_hash"), sc.hash());
+  }
+  if (!sc.empty()) {
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/t", H5T_NATIVE_INT64), (std::vector<std::int64_t>{0, 1, 2, 3}));
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_size", H5T_NATIVE_INT64), kRegionSize);
+    EXPECT_EQ(shape_of(f, "/entanglement/region_sites"), (std::vector<hsize_t>{2, 3}));
+    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/region_sites", H5T_NATIVE_INT64), kRegionSites);
     EXPECT_TRUE(type_is(f, "/entanglement/region_sites", H5T_STD_I64LE));
-    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/local_dim", H5T_NATIVE_INT64), e.local_dims);
-    EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/profile_t", H5T_NATIVE_INT64),
-              (std::vector<std::int64_t>{0, 2}));
-    EXPECT_EQ(attr_int(f, "/entanglement/stabilizer/profile", "stride"), kStride);
-    expect_f64(f, "/entanglement/wall_time", {hP}, [](const PointRecord& r) { return std::vector{r.ent_wall_time}; }, recs);
-    auto ipad = [](const std::vector<std::int64_t>& v, std::size_t w) {
-      std::vector<std::int64_t> o(w, -1);
-      std::copy_n(v.begin(), std::min(w, v.size()), o.begin());
-      return o;
-    };
-    expect_i64_rows(f, "/entanglement/cuts", {hP, hr}, [&](const PointRecord& r) { return ipad(r.ent_cuts, r_); }, recs);
-    expect_f64(f, "/entanglement/lyapunov_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.ent_lyapunov_rate, r_); }, recs);
-    expect_f64(f, "/entanglement/region_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.ent_region_rate, r_); }, recs);
-    const std::string g = "/entanglement/gaussian/";
-    expect_f64(f, g + "entropy", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_entropy, r_ * t_); }, recs);
-    expect_f64(f, g + "radius", {hP, hr, ht}, [&](const PointRecord& r) { return pad(r.gauss_radius, r_ * t_); }, recs);
-    expect_i64_rows(f, g + "failures", {hP, hr}, [&](const PointRecord& r) { return ipad(r.gauss_failures, r_); }, recs);
-    expect_f64(f, g + "slope", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope, r_); }, recs);
-    expect_f64(f, g + "slope_over_lyapunov", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope_over_lyapunov, r_); }, recs);
-    expect_f64(f, g + "slope_over_region_rate", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_slope_over_region_rate, r_); }, recs);
-    expect_f64(f, g + "saturation_value", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_value, r_); }, recs);
-    expect_f64(f, g + "saturation_time", {hP, hr}, [&](const PointRecord& r) { return pad(r.gauss_saturation_time, r_); }, recs);
-    const std::string b = "/entanglement/stabilizer/";
-    const std::size_t m = n_ * r_;
-    expect_f64(f, b + "entropy", {hP, hn, hr, ht}, [&](const PointRecord& r) { return pad(r.stab_entropy, m * t_); }, recs);
-    for (const auto& [name, field] : std::vector<std::pair<std::string, std::vector<double> PointRecord::*>>{
-             {"slope", &PointRecord::stab_slope},
-             {"slope_over_lyapunov", &PointRecord::stab_slope_over_lyapunov},
-             {"slope_over_lightcone", &PointRecord::stab_slope_over_lightcone},
-             {"saturation_value", &PointRecord::stab_saturation_value},
-             {"saturation_time", &PointRecord::stab_saturation_time},
-             {"cap", &PointRecord::stab_cap},
-             {"lightcone_rate", &PointRecord::stab_lightcone_rate}})
-      expect_f64(f, b + name, {hP, hn, hr}, [&, field = field](const PointRecord& r) { return pad(r.*field, m); }, recs);
-    expect_i64_rows(f, b + "violations", {hP, hn, hr}, [&](const PointRecord& r) { return ipad(r.stab_violations, m); }, recs);
-    expect_f64(f, b + "profile", {hP, hn, hk, static_cast<hsize_t>(W)}, [&](const PointRecord& r) {
-      std::vector<double> o(n_ * k_ * W, kNaN);
-      if (!r.stab_profile.empty()) {
-        const std::size_t w = r.stab_profile.size() / (n_ * k_);
-        for (std::size_t q = 0; q < n_ * k_; ++q)
-          std::copy_n(r.stab_profile.begin() + static_cast<std::ptrdiff_t>(q * w), w, o.begin() + static_cast<std::ptrdiff_t>(q * W));
+    EXPECT_EQ(attr_real(f, "/entanglement", "saturation_fraction"), 0.99);
+    const bool stab = link_exists(f, "/entanglement/stabilizer");
+    if (stab) EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/local_dim", H5T_NATIVE_INT64), kStabN);
+    if (sc.field_index("/entanglement/stabilizer/profile") >= 0) {
+      EXPECT_EQ(read_raw<std::int64_t>(f, "/entanglement/stabilizer/profile_t", H5T_NATIVE_INT64),
+                (std::vector<std::int64_t>{0, 2}));
+      EXPECT_EQ(attr_int(f, "/entanglement/stabilizer/profile", "stride"), kStride);
+      // The ragged last axis: a point of L sites fills x = 0..L, NaN beyond.
+      const auto v = read_raw<double>(f, "/entanglement/stabilizer/profile", H5T_NATIVE_DOUBLE);
+      ASSERT_EQ(v.size(), static_cast<std::size_t>(P) * 2 * 2 * 9);
+      for (std::int64_t i = 0; i < P; ++i) {
+        if (recs[static_cast<std::size_t>(i)].fields.empty()) continue;
+        const std::size_t L = static_cast<std::size_t>(recs[static_cast<std::size_t>(i)].params[1]);
+        const double* row = v.data() + static_cast<std::size_t>(i) * 36;
+        EXPECT_EQ(row[L], ent(recs[static_cast<std::size_t>(i)]).stab_profile[L]) << i;
+        for (std::size_t x = L + 1; x < 9; ++x) EXPECT_TRUE(std::isnan(row[x])) << i << " x " << x;
       }
-      return o;
-    }, recs);
-    // t, region_size, region_sites, wall_time, cuts, lyapunov_rate, region_rate; gaussian 8;
-    // stabilizer: local_dim + 9 + profile_t + profile
-    ent_count = 7 + (e.gaussian ? 8 : 0) + (n_ ? 10 + (e.profile_stride ? 2 : 0) : 0);
+    }
+    expect_f64(f, "/entanglement/wall_time", {hP}, [&](const PointRecord& r) { return std::vector{ent(r, sc).ent_wall_time}; }, recs);
+    for (std::size_t k = 0; k < sc.fields.size(); ++k) {
+      const FieldDecl& fd = sc.fields[k];
+      std::vector<hsize_t> shape{hP};
+      for (auto x : sc.inner_shape(k)) shape.push_back(static_cast<hsize_t>(x));
+      auto row = [&, k](const PointRecord& r) {
+        std::vector<double> of;
+        std::vector<std::int64_t> oi;
+        static const FieldValue none;
+        pad_value(sc, k, k < r.fields.size() ? r.fields[k] : none, of, oi);
+        return std::make_pair(of, oi);
+      };
+      if (fd.type == Elem::F64)
+        expect_f64(f, fd.path, shape, [&](const PointRecord& r) { return row(r).first; }, recs);
+      else
+        expect_i64_rows(f, fd.path, shape, [&](const PointRecord& r) { return row(r).second; }, recs);
+      // named dimensions: the point axis, then the declared axes
+      std::vector<std::string> want{"/point"};
+      want.insert(want.end(), fd.dims.begin(), fd.dims.end());
+      EXPECT_EQ(scales_of(f, fd.path), want) << fd.path;
+    }
+    ent_count = sc.coords.size() + sc.fields.size();
   }
 
   // units and meaning on every dataset; the documented units pinned
@@ -653,38 +797,13 @@ void check_file(const std::string& path, const RunAxes& ax, const RunMeta& meta,
       {"/bounds/ehrenfest_time", "periods"},
       {"/bounds/saturation_lyapunov", "periods"},
       {"/bounds/saturation_lightcone", "periods"},
-      {"/entanglement/t", "periods"},
-      {"/entanglement/region_size", "sites"},
-      {"/entanglement/region_sites", "1"},
-      {"/entanglement/wall_time", "s"},
-      {"/entanglement/cuts", "1"},
-      {"/entanglement/lyapunov_rate", "nats/period"},
-      {"/entanglement/region_rate", "nats/period"},
-      {"/entanglement/gaussian/entropy", "nats"},
-      {"/entanglement/gaussian/radius", "nats"},
-      {"/entanglement/gaussian/failures", "1"},
-      {"/entanglement/gaussian/slope", "nats/period"},
-      {"/entanglement/gaussian/slope_over_lyapunov", "1"},
-      {"/entanglement/gaussian/slope_over_region_rate", "1"},
-      {"/entanglement/gaussian/saturation_value", "nats"},
-      {"/entanglement/gaussian/saturation_time", "periods"},
-      {"/entanglement/stabilizer/local_dim", "1"},
-      {"/entanglement/stabilizer/entropy", "nats"},
-      {"/entanglement/stabilizer/slope", "nats/period"},
-      {"/entanglement/stabilizer/slope_over_lyapunov", "1"},
-      {"/entanglement/stabilizer/slope_over_lightcone", "1"},
-      {"/entanglement/stabilizer/saturation_value", "nats"},
-      {"/entanglement/stabilizer/saturation_time", "periods"},
-      {"/entanglement/stabilizer/cap", "nats"},
-      {"/entanglement/stabilizer/lightcone_rate", "nats/period"},
-      {"/entanglement/stabilizer/violations", "1"},
-      {"/entanglement/stabilizer/profile_t", "periods"},
-      {"/entanglement/stabilizer/profile", "nats"},
   };
   const auto all = datasets_of(f);
   // /points: params + index, status, message, method, wall_time; /chaos: 14
   // + 8 in /chaos/solver; /limit: 5; /bounds: 9
-  const std::size_t expected_count = ax.param_names.size() + 5 + 14 + 8 + (ax.bulk_limit ? 5 : 0) + 9 + ent_count;
+  // + the axes: /point, /chaos/exponent, bin and edge of each histogram
+  const std::size_t expected_count =
+      ax.param_names.size() + 5 + 14 + 8 + (ax.bulk_limit ? 5 : 0) + 9 + ent_count + 4 + (ax.bulk_limit ? 2 : 0);
   EXPECT_EQ(all.size(), expected_count);
   for (const auto& d : all) {
     h5::Object o(H5Oopen(f, d.c_str(), H5P_DEFAULT), H5Oclose, path, d);
@@ -1046,17 +1165,48 @@ TEST(ResultFile, RejectsInconsistentRecords) {
     if (g_rank == g_size - 1) mine.back().hilbert_cap.push_back(1.0);
     expect_refused(mine, "hilbert_cap");
   }
-  // entanglement vectors of the wrong length, a profile wider than Lmax + 1
+  // diagnostic values of the wrong length or element type, a ragged extent
+  // wider than its axis, a shape that breaks a non-ragged dim
   {
+    const Schema sc = make_schema();
+    auto at = [&](const char* path) { return static_cast<std::size_t>(sc.field_index(path)); };
+    // the first and the last of a rank's records that hold diagnostic values
+    auto first = [](std::vector<PointRecord>& v) -> PointRecord& {
+      return *std::find_if(v.begin(), v.end(), [](const PointRecord& r) { return !r.fields.empty(); });
+    };
+    auto last = [](std::vector<PointRecord>& v) -> PointRecord& {
+      return *std::find_if(v.rbegin(), v.rend(), [](const PointRecord& r) { return !r.fields.empty(); });
+    };
     auto mine = my_records(Dist::Cyclic);
-    if (g_rank == g_size - 1) mine.back().stab_violations.push_back(0);
-    expect_refused(mine, "stab_violations");
+    if (g_rank == g_size - 1) last(mine).fields[at("/entanglement/stabilizer/violations")].i.push_back(0);
+    expect_refused(mine, "/entanglement/stabilizer/violations: 5 values for shape of 4");
     mine = my_records(Dist::Cyclic);
-    if (g_rank == 0) mine.front().gauss_entropy.pop_back();
-    expect_refused(mine, "gauss_entropy");
+    if (g_rank == 0) first(mine).fields[at("/entanglement/gaussian/entropy")].f.pop_back();
+    expect_refused(mine, "/entanglement/gaussian/entropy");
     mine = my_records(Dist::Cyclic);
-    if (g_rank == 0) mine.front().stab_profile.assign(2 * 2 * 10, 0.0);  // 10 > Lmax + 1 = 9
-    expect_refused(mine, "stab_profile");
+    if (g_rank == 0) {
+      FieldValue& v = first(mine).fields[at("/entanglement/stabilizer/profile")];
+      v.shape = {2, 2, 10};  // 10 > the cut axis (Lmax + 1 = 9)
+      v.f.assign(2 * 2 * 10, 0.0);
+    }
+    expect_refused(mine, "extent 10 of dim /entanglement/stabilizer/cut");
+    mine = my_records(Dist::Cyclic);
+    if (g_rank == 0) {
+      FieldValue& v = first(mine).fields[at("/entanglement/gaussian/radius")];
+      v.shape = {1, 4};  // the region axis is not ragged
+      v.f.resize(4);
+    }
+    expect_refused(mine, "extent 1 of dim /entanglement/region_size");
+    mine = my_records(Dist::Cyclic);
+    if (g_rank == 0) {
+      FieldValue& v = first(mine).fields[at("/entanglement/cuts")];
+      v.f.assign(v.i.size(), 1.0);
+      v.i.clear();
+    }
+    expect_refused(mine, "wrong element type");
+    mine = my_records(Dist::Cyclic);
+    if (g_rank == 0) first(mine).fields.pop_back();
+    expect_refused(mine, "declared fields");
   }
   // wrong number of parameters, an index out of range
   {
@@ -1147,7 +1297,7 @@ namespace {
 using toral_test::bits;
 
 // What read_results gives back for record `r` stored in row `row`.
-PointRecord canonical(PointRecord r, std::int64_t row) {
+PointRecord canonical(PointRecord r, std::int64_t row, const Schema& sc = make_schema()) {
   r.row = row;
   r.message = h5::truncate_utf8(r.message, kMessageBytes - 1);
   auto canon = [](std::vector<double>& v) {
@@ -1155,15 +1305,19 @@ PointRecord canonical(PointRecord r, std::int64_t row) {
   };
   for (auto* v : {&r.exponent_errors, &r.hist_counts, &r.hist_edges, &r.limit_hist_counts,
                   &r.limit_hist_edges, &r.lyapunov_rate, &r.hilbert_cap, &r.lightcone_rate,
-                  &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone,
-                  &r.ent_lyapunov_rate, &r.ent_region_rate, &r.gauss_entropy, &r.gauss_radius, &r.gauss_slope,
-                  &r.gauss_slope_over_lyapunov, &r.gauss_slope_over_region_rate, &r.gauss_saturation_value,
-                  &r.gauss_saturation_time, &r.stab_entropy, &r.stab_slope, &r.stab_slope_over_lyapunov,
-                  &r.stab_slope_over_lightcone, &r.stab_saturation_value, &r.stab_saturation_time, &r.stab_cap,
-                  &r.stab_lightcone_rate, &r.stab_profile})
+                  &r.ehrenfest_time, &r.saturation_lyapunov, &r.saturation_lightcone})
     canon(*v);
-  for (auto* v : {&r.cuts, &r.ent_cuts, &r.gauss_failures, &r.stab_violations})
-    if (std::all_of(v->begin(), v->end(), [](std::int64_t x) { return x == -1; })) v->clear();
+  if (std::all_of(r.cuts.begin(), r.cuts.end(), [](std::int64_t x) { return x == -1; })) r.cuts.clear();
+  // A field value reads back as its padded row does (io/schema.hpp unpad_row).
+  if (!r.fields.empty()) {
+    for (std::size_t k = 0; k < r.fields.size(); ++k) {
+      std::vector<double> f;
+      std::vector<std::int64_t> i;
+      pad_value(sc, k, r.fields[k], f, i);
+      r.fields[k] = unpad_row(sc, k, f.data(), i.data());
+    }
+    if (std::all_of(r.fields.begin(), r.fields.end(), [](const FieldValue& v) { return v.empty(); })) r.fields.clear();
+  }
   return r;
 }
 
@@ -1175,16 +1329,8 @@ void expect_same_axes(const RunAxes& a, const RunAxes& b) {
   EXPECT_EQ(a.local_dims, b.local_dims);
   EXPECT_EQ(a.hist_bins, b.hist_bins);
   EXPECT_EQ(a.bulk_limit, b.bulk_limit);
-  const EntanglementAxes &x = a.entanglement, &y = b.entanglement;
-  EXPECT_EQ(x.present, y.present);
-  EXPECT_EQ(x.periods, y.periods);
-  EXPECT_EQ(x.region_size, y.region_size);
-  EXPECT_EQ(x.region_sites, y.region_sites);
-  EXPECT_EQ(x.gaussian, y.gaussian);
-  EXPECT_EQ(x.local_dims, y.local_dims);
-  EXPECT_EQ(x.profile_stride, y.profile_stride);
-  EXPECT_EQ(x.profile_sites, y.profile_sites);
-  EXPECT_TRUE(x == y);
+  EXPECT_EQ(a.schema.text(), b.schema.text());
+  EXPECT_TRUE(a.schema == b.schema);
 }
 
 void expect_same_meta(const RunMeta& a, const RunMeta& b) {
@@ -1405,29 +1551,24 @@ TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
   on_rank0([&] {
     check_file(p, make_axes(true, false), make_meta());
     const ResultData d = read_results(p);
-    EXPECT_FALSE(d.axes.entanglement.present);
-    for (const auto& r : d.records) EXPECT_TRUE(r.gauss_entropy.empty() && r.ent_cuts.empty());
+    EXPECT_TRUE(d.axes.schema.empty());
+    for (const auto& r : d.records) EXPECT_TRUE(r.fields.empty());
   });
   try {
     write_results(MPI_COMM_WORLD, scratch("noent_bad.h5"), false, make_axes(true, false), make_meta(), kP,
                   my_records(Dist::Cyclic));
-    ADD_FAILURE() << "records with entanglement fields accepted without entanglement axes";
+    ADD_FAILURE() << "records with diagnostic values accepted without a schema";
   } catch (const ResultFileError& e) {
-    EXPECT_NE(std::string(e.what()).find("expected 0"), std::string::npos) << e.what();
+    EXPECT_NE(std::string(e.what()).find("declared fields"), std::string::npos) << e.what();
   }
   barrier();
-  // stabilizer only, no profile
+  // stabilizer only, no profile: the schema of that part alone
+  const Schema part_schema = make_schema({false, true, false});
   RunAxes ax = make_axes();
-  ax.entanglement.gaussian = false;
-  ax.entanglement.profile_stride = ax.entanglement.profile_sites = 0;
+  ax.schema = part_schema;
   auto part = my_records(Dist::Cyclic);
-  for (auto& r : part) {
-    for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
-                    &r.gauss_slope_over_region_rate, &r.gauss_saturation_value, &r.gauss_saturation_time,
-                    &r.stab_profile})
-      v->clear();
-    r.gauss_failures.clear();
-  }
+  for (auto& r : part)
+    if (!r.fields.empty()) pack(ent(r), part_schema, r);
   const std::string q = scratch("stab_only.h5");
   write_results(MPI_COMM_WORLD, q, false, ax, make_meta(), kP, part);
   barrier();
@@ -1437,17 +1578,15 @@ TEST(ResultFile, EntanglementGroupOnlyWhenConfigured) {
       EXPECT_TRUE(link_exists(rf.id, "/entanglement/stabilizer/entropy"));
       EXPECT_FALSE(link_exists(rf.id, "/entanglement/gaussian"));
       EXPECT_FALSE(link_exists(rf.id, "/entanglement/stabilizer/profile"));
+      EXPECT_FALSE(link_exists(rf.id, "/entanglement/stabilizer/cut"));
     }
     const ResultData d = read_results(q);
     expect_same_axes(d.axes, ax);
     for (std::int64_t i = 0; i < kP; ++i) {
       PointRecord r = make_record(i);
-      for (auto* v : {&r.gauss_entropy, &r.gauss_radius, &r.gauss_slope, &r.gauss_slope_over_lyapunov,
-                      &r.gauss_slope_over_region_rate, &r.gauss_saturation_value, &r.gauss_saturation_time,
-                      &r.stab_profile})
-        v->clear();
-      r.gauss_failures.clear();
-      toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i), "point " + std::to_string(i));
+      if (!r.fields.empty()) pack(ent(r), part_schema, r);
+      toral_test::expect_identical_records(d.records[static_cast<std::size_t>(i)], canonical(r, i, part_schema),
+                                           "point " + std::to_string(i));
     }
   });
 }
@@ -1632,10 +1771,10 @@ TEST(ResultFile, ReadResultsOfOlderLayout1File) {
       ASSERT_GE(f.id, 0);
       for (const char* l : {"/points/index", "/chaos/exponent_error", "/chaos/solver", "/entanglement"})
         ASSERT_GE(H5Ldelete(f.id, l, H5P_DEFAULT), 0) << l;
-      for (const char* a : {"config_hash", "total_points", "shard"}) ASSERT_GE(H5Adelete(f.id, a), 0) << a;
+      for (const char* a : {"config_hash", "total_points", "shard", "schema", "schema_hash"}) ASSERT_GE(H5Adelete(f.id, a), 0) << a;
     }
     const ResultData d = read_results(p);
-    EXPECT_FALSE(d.axes.entanglement.present);
+    EXPECT_TRUE(d.axes.schema.empty());
     EXPECT_EQ(d.meta.config_hash, "");
     EXPECT_EQ(d.meta.total_points, kP);
     EXPECT_EQ(d.meta.shard, "");
@@ -1697,9 +1836,10 @@ TEST(ResultFile, ReadResultsErrors) {
       o.write(bytes.data(), static_cast<std::streamsize>(bytes.size() / 2));
     }
     expect_read_error(half, "corrupt");
-    // an unsupported layout version: a file of an older toral (version 1 had
-    // /bounds/cuts per point and lightcone_rate per N), and a future one
-    for (const std::int64_t version : {std::int64_t{1}, std::int64_t{3}}) {
+    // an unsupported layout version: files of an older toral (version 1 had
+    // /bounds/cuts per point and lightcone_rate per N; version 2 had no
+    // declared schema or dimension scales), and a future one
+    for (const std::int64_t version : {std::int64_t{1}, std::int64_t{2}, std::int64_t{4}}) {
       const std::string vf = scratch("v" + std::to_string(version) + ".h5");
       fs::copy_file(good, vf);
       {
@@ -1710,7 +1850,8 @@ TEST(ResultFile, ReadResultsErrors) {
         H5Aclose(a);
       }
       expect_read_error(vf, "unsupported layout version " + std::to_string(version) +
-                                " (this toral reads layout version 2)");
+                                " (this toral reads layout version 3; " +
+                                (version < 3 ? "rerun the config" : "written by a newer toral"));
     }
     // a required dataset missing
     const std::string miss = scratch("missing_dataset.h5");

@@ -10,6 +10,7 @@
 #include <cstring>
 #include <filesystem>
 #include <fstream>
+#include <iterator>
 #include <limits>
 #include <sstream>
 #include <string>
@@ -141,31 +142,30 @@ PointRecord make_record(std::int64_t i) {
   r.ehrenfest_time = vec(u + 9, i % 2 ? 2 : 0);
   r.saturation_lyapunov = vec(u + 10, (u % 3) * 2);
   r.saturation_lightcone = vec(u + 11, (u % 3) * 2);
-  // /entanglement: absent for some records, else regions x t etc. with awkward values
+  // the diagnostics' values: absent for some records, else fields of
+  // assorted shapes (scalars, ragged, empty ones) with awkward values
   if (i % 4 != 3) {
     const std::size_t nr = 1 + u % 3, nt = 2 + u % 5, nn = u % 3;
-    r.ent_wall_time = special(u + 12);
-    for (std::size_t k = 0; k < nr; ++k) r.ent_cuts.push_back(k % 2 ? -1 : static_cast<std::int64_t>(k + u));
-    r.ent_lyapunov_rate = vec(u + 13, nr);
-    r.ent_region_rate = vec(u + 29, nr);
-    r.gauss_entropy = vec(u + 14, nr * nt);
-    r.gauss_radius = vec(u + 15, nr * nt);
-    r.gauss_failures.assign(nr, i % 5 == 0 ? -1 : static_cast<std::int64_t>(u));
-    r.gauss_slope = vec(u + 16, nr);
-    r.gauss_slope_over_lyapunov = vec(u + 17, nr);
-    r.gauss_slope_over_region_rate = vec(u + 30, nr);
-    r.gauss_saturation_value = vec(u + 18, nr);
-    r.gauss_saturation_time = vec(u + 19, nr);
-    r.stab_entropy = vec(u + 20, nn * nr * nt);
-    r.stab_slope = vec(u + 21, nn * nr);
-    r.stab_slope_over_lyapunov = vec(u + 22, nn * nr);
-    r.stab_slope_over_lightcone = vec(u + 23, nn * nr);
-    r.stab_saturation_value = vec(u + 24, nn * nr);
-    r.stab_saturation_time = vec(u + 25, nn * nr);
-    r.stab_cap = vec(u + 26, nn * nr);
-    r.stab_lightcone_rate = vec(u + 27, nn * nr);
-    r.stab_violations.assign(nn * nr, static_cast<std::int64_t>(i % 2));
-    r.stab_profile = vec(u + 28, nn * (1 + u % 2) * (3 + u % 4));
+    FieldValue w;
+    w.f = {special(u + 12)};
+    r.fields.push_back(w);
+    FieldValue cuts;
+    cuts.shape = {static_cast<std::int64_t>(nr)};
+    for (std::size_t k = 0; k < nr; ++k) cuts.i.push_back(k % 2 ? -1 : static_cast<std::int64_t>(k + u));
+    r.fields.push_back(cuts);
+    FieldValue ent;
+    ent.shape = {static_cast<std::int64_t>(nr), static_cast<std::int64_t>(nt)};
+    ent.f = vec(u + 14, nr * nt);
+    r.fields.push_back(ent);
+    r.fields.push_back(FieldValue{});  // not computed
+    FieldValue stab;
+    stab.shape = {static_cast<std::int64_t>(nn), static_cast<std::int64_t>(nr), static_cast<std::int64_t>(nt)};
+    stab.f = vec(u + 20, nn * nr * nt);
+    r.fields.push_back(stab);
+    FieldValue viol;
+    viol.shape = {static_cast<std::int64_t>(nn), static_cast<std::int64_t>(nr)};
+    viol.i.assign(nn * nr, static_cast<std::int64_t>(i % 2));
+    r.fields.push_back(viol);
   }
   return r;
 }
@@ -220,6 +220,39 @@ TEST(Journal, RoundTripManyRecordsBitExact) {
   for (std::int64_t i = 0; i < n; ++i)
     EXPECT_EQ(sizes[static_cast<std::size_t>(i) + 1] - sizes[static_cast<std::size_t>(i)],
               encode_record(make_record(i)).size() + 16);
+}
+
+TEST(Journal, SchemaHashInTheHeader) {
+  const std::string p = scratch().path("schema.journal");
+  {
+    JournalWriter w;
+    w.open_new(p, "0123456789abcdef", 9, "fedcba9876543210");
+    w.append(make_record(1));
+    w.close();
+  }
+  const auto c = read_journal(p);
+  EXPECT_EQ(c.config_hash, "0123456789abcdef");
+  EXPECT_EQ(c.schema_hash, "fedcba9876543210");
+  EXPECT_EQ(c.total_points, 9);
+  ASSERT_EQ(c.records.size(), 1u);
+  toral_test::expect_identical_records(c.records[0], make_record(1), "record 1");
+  // a flipped byte of the schema hash breaks the header checksum
+  std::string b;
+  {
+    std::ifstream in(p, std::ios::binary);
+    b.assign(std::istreambuf_iterator<char>(in), {});
+  }
+  b[16 + 16 + 4 + 3] ^= 0x01;
+  {
+    std::ofstream out(p, std::ios::binary | std::ios::trunc);
+    out << b;
+  }
+  try {
+    read_journal(p);
+    ADD_FAILURE() << "a damaged schema hash was accepted";
+  } catch (const ResultFileError& e) {
+    EXPECT_NE(std::string(e.what()).find("checksum"), std::string::npos) << e.what();
+  }
 }
 
 TEST(Journal, DefaultRecordAndEmptyHash) {
@@ -382,12 +415,13 @@ TEST(Journal, BadHeadersAreErrors) {
     b[8] = static_cast<char>(kJournalVersion + 1);  // a later version
     expect_error(b, "unsupported journal format version " + std::to_string(kJournalVersion + 1));
   }
-  for (const char old : {1, 2}) {
+  for (const char old : {1, 2, 3}) {
     // journals of the previous formats (1: before /entanglement; 2: before the
-    // exact zero count, the region rate and the per-ell cuts) are refused by name
+    // exact zero count, the region rate and the per-ell cuts; 3: before the
+    // declared diagnostics' fields and the schema hash) are refused by name
     std::string b = full;
     b[8] = old;
-    expect_error(b, "unsupported journal format version " + std::to_string(old) + " (this toral reads version 3)");
+    expect_error(b, "unsupported journal format version " + std::to_string(old) + " (this toral reads version 4)");
   }
   {
     std::string b = full;

@@ -121,8 +121,9 @@ def wait_for_finished_point(journal, proc, timeout=120.0):
 
     A fixed sleep is a guess about the machine's speed (a slow CI machine
     finished nothing in one second); the journal is the run's own record.
-    Its header is 8 magic + 4 version + 4 n + n hash + 8 total + 8 checksum
-    bytes (io/journal.hpp); anything beyond it is a point frame."""
+    Its header is 8 magic + 4 version + 4 n + n config hash + 4 m + m schema
+    hash + 8 total + 8 checksum bytes (io/journal.hpp); anything beyond it is
+    a point frame."""
     t_end = time.time() + timeout
     while time.time() < t_end:
         assert proc.poll() is None, "the run ended before any point was journalled"
@@ -131,9 +132,11 @@ def wait_for_finished_point(journal, proc, timeout=120.0):
         except FileNotFoundError:
             raw = b""
         if len(raw) >= 16:
-            header = 32 + int.from_bytes(raw[12:16], "little")
-            if len(raw) > header:
-                return
+            n = int.from_bytes(raw[12:16], "little")
+            if len(raw) >= 20 + n:
+                m = int.from_bytes(raw[16 + n:20 + n], "little")
+                if len(raw) > 36 + n + m:
+                    return
         time.sleep(0.02)
     raise AssertionError(f"no point finished within {timeout} s")
 

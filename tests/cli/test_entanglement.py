@@ -367,7 +367,8 @@ def test_shards_and_merge_keep_entanglement(runs, run_toral):
     run_toral("merge", merged, *shards, check=True)
     a, b = load(h5), load(merged)
     keys = [k for k in a if k.startswith("entanglement/") and k != "entanglement/wall_time"]
-    assert len(keys) == 26 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
+    # 26 datasets and the axes region, site_slot and stabilizer/cut (layout version 3)
+    assert len(keys) == 29 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
     for k in keys:
         np.testing.assert_array_equal(a[k], b[k], err_msg=k)
 
@@ -439,7 +440,7 @@ stabilizer_dims = [2]
     for T in (30, 300):
         p = run_toral("check", write(tmp_path, text.replace("{T}", str(T)), f"c{T}.toml"), check=True)
         header, rows = check_table(p.stdout)
-        assert header is not None and header[-2:] == ["entangle", "s"], p.stdout
+        assert header is not None and header[-2:] == ["entanglement", "s"], p.stdout
         (spectrum_s, ent_s), = rows.values()
         assert math.isfinite(ent_s) and ent_s > 0
         est[T] = ent_s
@@ -474,7 +475,7 @@ def test_check_counts_the_kernels_memory_and_refuses_what_cannot_fit(tmp_path, r
     # An odd N keeps the L x 2L generator rows in 8-byte words (64 MiB at L = 2048), far more than the
     # curves themselves; check must see it (within a factor of two of the measured peak of the same point
     # over a run without [entanglement]: a wide margin, the allocator and libraries move the peak) and
-    # refuse a rank memory that cannot hold it, with the entanglement kernels named.
+    # refuse a rank memory that cannot hold it, with the entanglement diagnostic named.
     base = kicked_ring(2048, 3) + '[spectrum]\nmethod = "krylov"\n'
     ent = "[entanglement]\nperiods = 4\nregions = [[0, 5]]\ngaussian = false\nstabilizer_dims = [3]\n"
     cfg, plain = write(tmp_path, base + ent, "m.toml"), write(tmp_path, base, "m0.toml")
@@ -485,7 +486,7 @@ def test_check_counts_the_kernels_memory_and_refuses_what_cannot_fit(tmp_path, r
     assert measured > 32 * 2**20, measured  # the kernel really holds tens of MiB
     assert measured / 2 < estimate < 2 * measured + 16 * 2**20, (estimate, measured)
     p = run_toral("check", cfg, "--memory-per-rank", "0.03")
-    one_line_error(p, "entanglement kernels")
+    one_line_error(p, "mostly the diagnostics (entanglement)")
 
 
 def test_ensemble_stats_of_the_curves_match_numpy(runs):
