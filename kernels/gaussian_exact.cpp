@@ -819,7 +819,7 @@ class SpectrumSolver {
         fmpz_set(fmpz_mat_entry(JG.get(), i, j), fmpz_mat_entry(G, i + k, j));
         neg(fmpz_mat_entry(JG.get(), i + k, j), fmpz_mat_entry(G, i, j));
       }
-    FmpzPoly cp;
+    FmpzPoly cp;  // freshly zero, as FLINT 2.9's fmpz_mat_charpoly wants (unit_circle.cpp)
     fmpz_mat_charpoly(cp.get(), JG.get());
     fmpz_poly_zero(q);
     Fmpz c;
