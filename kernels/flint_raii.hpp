@@ -2,19 +2,23 @@
 // template instead of a hand-written struct per type. A holder owns one
 // initialised object, is neither copied nor moved, and clears it on exit.
 //
-//   FlintPoly p;            fmpz_poly_set_si(p.get(), 3);
-//   FlintMat m(4, 4);       fmpz_mat_entry(m.get(), 0, 0)
+//   Poly p;                 fmpz_poly_set_si(p.get(), 3);
+//   Mat m(4, 4);            fmpz_mat_entry(m.get(), 0, 0)
 #pragma once
 #include <acb.h>
 #include <acb_poly.h>
 #include <arb.h>
 #include <arb_mat.h>
+#include <arf.h>
+#include <mag.h>
 #include <flint/fmpz.h>
 #include <flint/fmpz_mat.h>
 #include <flint/fmpz_mpoly.h>
 #include <flint/fmpz_mpoly_factor.h>
 #include <flint/fmpz_poly.h>
 #include <flint/fmpz_poly_factor.h>
+#include <flint/nmod_mat.h>
+#include <flint/nmod_poly.h>
 
 namespace toral::flint {
 
@@ -41,6 +45,10 @@ inline void fmpz_init_w(fmpz* x) { fmpz_init(x); }
 inline void fmpz_clear_w(fmpz* x) { fmpz_clear(x); }
 inline void arb_init_w(arb_struct* x) { arb_init(x); }
 inline void arb_clear_w(arb_struct* x) { arb_clear(x); }
+inline void arf_init_w(arf_struct* x) { arf_init(x); }
+inline void arf_clear_w(arf_struct* x) { arf_clear(x); }
+inline void mag_init_w(mag_struct* x) { mag_init(x); }
+inline void mag_clear_w(mag_struct* x) { mag_clear(x); }
 inline void acb_init_w(acb_struct* x) { acb_init(x); }
 inline void acb_clear_w(acb_struct* x) { acb_clear(x); }
 inline void fmpz_poly_init_w(fmpz_poly_struct* x) { fmpz_poly_init(x); }
@@ -53,6 +61,8 @@ inline void acb_poly_clear_w(acb_poly_struct* x) { acb_poly_clear(x); }
 
 using Int = Holder<fmpz, detail::fmpz_init_w, detail::fmpz_clear_w>;
 using Ball = Holder<arb_struct, detail::arb_init_w, detail::arb_clear_w>;
+using Float = Holder<arf_struct, detail::arf_init_w, detail::arf_clear_w>;  // arf_t
+using Mag = Holder<mag_struct, detail::mag_init_w, detail::mag_clear_w>;
 using CBall = Holder<acb_struct, detail::acb_init_w, detail::acb_clear_w>;
 using Poly = Holder<fmpz_poly_struct, detail::fmpz_poly_init_w, detail::fmpz_poly_clear_w>;
 using PolyFactors =
@@ -100,6 +110,55 @@ class CVec {
  private:
   acb_ptr p_;
   slong n_;
+};
+
+// Matrices and polynomials modulo a word-size n.
+class NModMat {
+ public:
+  NModMat(slong rows, slong cols, mp_limb_t n) { nmod_mat_init(m_, rows, cols, n); }
+  ~NModMat() { nmod_mat_clear(m_); }
+  NModMat(const NModMat&) = delete;
+  NModMat& operator=(const NModMat&) = delete;
+  nmod_mat_struct* get() { return m_; }
+  const nmod_mat_struct* get() const { return m_; }
+
+ private:
+  nmod_mat_t m_;
+};
+
+class NModPoly {
+ public:
+  explicit NModPoly(mp_limb_t n) { nmod_poly_init(p_, n); }
+  ~NModPoly() { nmod_poly_clear(p_); }
+  NModPoly(const NModPoly&) = delete;
+  NModPoly& operator=(const NModPoly&) = delete;
+  nmod_poly_struct* get() { return p_; }
+  const nmod_poly_struct* get() const { return p_; }
+
+ private:
+  nmod_poly_t p_;
+};
+
+// A CRT / multi-modular reduction tree over n word primes with its scratch
+// space (fmpz_comb_t and fmpz_comb_temp_t). The primes must outlive it.
+class Comb {
+ public:
+  Comb(const mp_limb_t* primes, slong n) {
+    fmpz_comb_init(c_, primes, n);
+    fmpz_comb_temp_init(t_, c_);
+  }
+  ~Comb() {
+    fmpz_comb_temp_clear(t_);
+    fmpz_comb_clear(c_);
+  }
+  Comb(const Comb&) = delete;
+  Comb& operator=(const Comb&) = delete;
+  const fmpz_comb_struct* comb() const { return c_; }
+  fmpz_comb_temp_struct* temp() { return t_; }
+
+ private:
+  fmpz_comb_t c_;
+  fmpz_comb_temp_t t_;
 };
 
 // Multivariate polynomials live in a context.

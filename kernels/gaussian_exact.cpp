@@ -1,9 +1,10 @@
 #include "gaussian_exact.hpp"
 
+#include "flint_raii.hpp"
 #include "multimod.hpp"
+#include "real_roots.hpp"
 
 #include <acb.h>
-#include <acb_poly.h>
 #include <arb.h>
 #include <arb_fmpz_poly.h>
 #include <flint/fmpz.h>
@@ -20,7 +21,6 @@
 #include <cstdint>
 #include <memory>
 #include <cmath>
-#include <numbers>
 #include <numeric>
 #include <stdexcept>
 #include <string>
@@ -30,79 +30,14 @@ namespace toral {
 
 namespace {
 
-// ---- RAII holders for the FLINT / arb types used here (no copies).
-struct Fmpz {
-  fmpz_t v;
-  Fmpz() { fmpz_init(v); }
-  ~Fmpz() { fmpz_clear(v); }
-  Fmpz(const Fmpz&) = delete;
-  Fmpz& operator=(const Fmpz&) = delete;
-};
-
-struct FmpzMat {
-  fmpz_mat_t m;
-  FmpzMat(slong r, slong c) { fmpz_mat_init(m, r, c); }
-  ~FmpzMat() { fmpz_mat_clear(m); }
-  FmpzMat(const FmpzMat&) = delete;
-  FmpzMat& operator=(const FmpzMat&) = delete;
-};
-
-struct FmpzPoly {
-  fmpz_poly_t p;
-  FmpzPoly() { fmpz_poly_init(p); }
-  ~FmpzPoly() { fmpz_poly_clear(p); }
-  FmpzPoly(const FmpzPoly&) = delete;
-  FmpzPoly& operator=(const FmpzPoly&) = delete;
-};
-
-struct PolyFactor {
-  fmpz_poly_factor_t f;
-  PolyFactor() { fmpz_poly_factor_init(f); }
-  ~PolyFactor() { fmpz_poly_factor_clear(f); }
-  PolyFactor(const PolyFactor&) = delete;
-  PolyFactor& operator=(const PolyFactor&) = delete;
-};
-
-struct Arb {
-  arb_t v;
-  Arb() { arb_init(v); }
-  ~Arb() { arb_clear(v); }
-  Arb(const Arb&) = delete;
-  Arb& operator=(const Arb&) = delete;
-};
-
-struct Arf {
-  arf_t v;
-  Arf() { arf_init(v); }
-  ~Arf() { arf_clear(v); }
-  Arf(const Arf&) = delete;
-  Arf& operator=(const Arf&) = delete;
-};
-
-struct Acb {
-  acb_t v;
-  Acb() { acb_init(v); }
-  ~Acb() { acb_clear(v); }
-  Acb(const Acb&) = delete;
-  Acb& operator=(const Acb&) = delete;
-};
-
-struct Mag {
-  mag_t v;
-  Mag() { mag_init(v); }
-  ~Mag() { mag_clear(v); }
-  Mag(const Mag&) = delete;
-  Mag& operator=(const Mag&) = delete;
-};
-
-struct AcbVec {
-  acb_ptr p;
-  slong n;
-  explicit AcbVec(slong n_) : p(_acb_vec_init(n_)), n(n_) {}
-  ~AcbVec() { _acb_vec_clear(p, n); }
-  AcbVec(const AcbVec&) = delete;
-  AcbVec& operator=(const AcbVec&) = delete;
-};
+// The shared FLINT / arb holders (flint_raii.hpp) under the names used here.
+using Fmpz = flint::Int;
+using FmpzMat = flint::Mat;
+using FmpzPoly = flint::Poly;
+using PolyFactor = flint::PolyFactors;
+using Arb = flint::Ball;
+using Arf = flint::Float;
+using AcbVec = flint::CVec;
 
 // FLINT's inline fmpz_neg / fmpz_set_si call GMP directly, and the build
 // links FLINT and arb but not GMP itself: use FLINT's exported functions.
@@ -110,17 +45,6 @@ void neg(fmpz_t r, const fmpz_t x) { fmpz_mul_si(r, x, -1); }
 void set_si(fmpz_t r, slong v) {
   fmpz_one(r);
   fmpz_mul_si(r, r, v);
-}
-
-// Midpoint of x rounded to double and a certified bound on |x - midpoint|.
-std::pair<double, double> to_double_with_radius(const arb_t x) {
-  const double mid = arf_get_d(arb_midref(x), ARF_RND_NEAR);
-  Arb err;
-  arb_set_d(err.v, mid);
-  arb_sub(err.v, x, err.v, 2 * arf_bits(arb_midref(x)) + 64);
-  Arf ub;
-  arb_get_abs_ubound_arf(ub.v, err.v, 64);
-  return {mid, arf_get_d(ub.v, ARF_RND_UP)};
 }
 
 // Plain validated data for one run.
@@ -138,7 +62,7 @@ void build_sigma0(Problem& pr, const std::vector<GaussianSite>& init) {
   const std::int64_t L = pr.L;
   // Reduced s = n/d per squeezed site; Den = lcm of every n and d.
   std::vector<std::pair<std::int64_t, std::int64_t>> s(static_cast<std::size_t>(L), {1, 1});
-  fmpz_one(pr.den.v);
+  fmpz_one(pr.den.get());
   Fmpz tmp;
   for (std::int64_t i = 0; i < L; ++i) {
     const GaussianSite& g = init[static_cast<std::size_t>(i)];
@@ -157,23 +81,23 @@ void build_sigma0(Problem& pr, const std::vector<GaussianSite>& init) {
     n /= gg;
     d /= gg;
     s[static_cast<std::size_t>(i)] = {n, d};
-    set_si(tmp.v, n);
-    fmpz_lcm(pr.den.v, pr.den.v, tmp.v);
-    set_si(tmp.v, d);
-    fmpz_lcm(pr.den.v, pr.den.v, tmp.v);
+    set_si(tmp.get(), n);
+    fmpz_lcm(pr.den.get(), pr.den.get(), tmp.get());
+    set_si(tmp.get(), d);
+    fmpz_lcm(pr.den.get(), pr.den.get(), tmp.get());
   }
   pr.D = std::vector<Fmpz>(static_cast<std::size_t>(2 * L));
   for (std::int64_t i = 0; i < L; ++i) {
     const auto [n, d] = s[static_cast<std::size_t>(i)];
     // q: Den * n / d, p: Den * d / n (exact: n and d divide Den).
-    fmpz_mul_si(pr.D[static_cast<std::size_t>(i)].v, pr.den.v, n);
-    fmpz_divexact_si(pr.D[static_cast<std::size_t>(i)].v, pr.D[static_cast<std::size_t>(i)].v, d);
-    fmpz_mul_si(pr.D[static_cast<std::size_t>(L + i)].v, pr.den.v, d);
-    fmpz_divexact_si(pr.D[static_cast<std::size_t>(L + i)].v, pr.D[static_cast<std::size_t>(L + i)].v, n);
+    fmpz_mul_si(pr.D[static_cast<std::size_t>(i)].get(), pr.den.get(), n);
+    fmpz_divexact_si(pr.D[static_cast<std::size_t>(i)].get(), pr.D[static_cast<std::size_t>(i)].get(), d);
+    fmpz_mul_si(pr.D[static_cast<std::size_t>(L + i)].get(), pr.den.get(), d);
+    fmpz_divexact_si(pr.D[static_cast<std::size_t>(L + i)].get(), pr.D[static_cast<std::size_t>(L + i)].get(), n);
   }
   pr.unit_D = true;
   for (const Fmpz& x : pr.D)
-    if (!fmpz_is_one(x.v)) pr.unit_D = false;
+    if (!fmpz_is_one(x.get())) pr.unit_D = false;
 }
 
 // The light-cone-restricted rows R = P_A S^t: columns `support` (sorted
@@ -198,7 +122,7 @@ class LightCone {
     for (std::int64_t r = 0; r < 2 * pr.k; ++r) {
       const auto it =
           std::lower_bound(support_.begin(), support_.end(), pr.rows[static_cast<std::size_t>(r)]);
-      fmpz_one(fmpz_mat_entry(R_->m, r, it - support_.begin()));
+      fmpz_one(fmpz_mat_entry(R_->get(), r, it - support_.begin()));
     }
     // Distinct values of S (coefficients of the residue update) and of D.
     svals_.assign(S.val.begin(), S.val.end());
@@ -211,8 +135,8 @@ class LightCone {
       d_index_.resize(pr.D.size());
       for (std::size_t c = 0; c < pr.D.size(); ++c) {
         std::size_t i = 0;
-        while (i < dvals_.size() && !fmpz_equal(dvals_[i], pr.D[c].v)) ++i;
-        if (i == dvals_.size()) dvals_.push_back(pr.D[c].v);
+        while (i < dvals_.size() && !fmpz_equal(dvals_[i], pr.D[c].get())) ++i;
+        if (i == dvals_.size()) dvals_.push_back(pr.D[c].get());
         d_index_[c] = static_cast<std::int32_t>(i);
       }
       for (const fmpz* d : dvals_) dbits_ = std::max<slong>(dbits_, static_cast<slong>(fmpz_bits(d)));
@@ -243,7 +167,7 @@ class LightCone {
         ++count[static_cast<std::size_t>(jj) + 1];
         const slong v = static_cast<slong>(S_.val[e]);
         for (slong r = 0; r < rows; ++r)
-          fmpz_addmul_si(fmpz_mat_entry(Rn->m, r, jj), fmpz_mat_entry(R_->m, r, static_cast<slong>(ci)), v);
+          fmpz_addmul_si(fmpz_mat_entry(Rn->get(), r, jj), fmpz_mat_entry(R_->get(), r, static_cast<slong>(ci)), v);
       }
     }
     std::vector<std::int64_t> src, fill;
@@ -268,7 +192,7 @@ class LightCone {
     keep.reserve(next.size());
     for (std::size_t j = 0; j < next.size(); ++j) {
       bool nz = false;
-      for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->m, r, j));
+      for (slong r = 0; r < rows && !nz; ++r) nz = !fmpz_is_zero(fmpz_mat_entry(Rn->get(), r, j));
       if (nz) keep.push_back(static_cast<std::int64_t>(j));
     }
     if (nres_ > 0) {
@@ -293,7 +217,7 @@ class LightCone {
       std::vector<std::int64_t> kept_cols;
       for (std::size_t j = 0; j < keep.size(); ++j) {
         for (slong r = 0; r < rows; ++r)
-          fmpz_swap(fmpz_mat_entry(Rk->m, r, static_cast<slong>(j)), fmpz_mat_entry(Rn->m, r, keep[j]));
+          fmpz_swap(fmpz_mat_entry(Rk->get(), r, static_cast<slong>(j)), fmpz_mat_entry(Rn->get(), r, keep[j]));
         kept_cols.push_back(next[static_cast<std::size_t>(keep[j])]);
       }
       Rn = std::move(Rk);
@@ -340,7 +264,7 @@ class LightCone {
                    dvals_.size(), pr_.unit_D ? nullptr : col_d_index().data(), Gres_.data());
     if (comb_np_ != nres_) {
       comb_.reset();
-      comb_ = std::make_unique<Comb>(primes_.data(), static_cast<slong>(nres_));
+      comb_ = std::make_unique<flint::Comb>(primes_.data(), static_cast<slong>(nres_));
       comb_np_ = nres_;
     }
     std::vector<mp_limb_t> r(nres_);
@@ -348,7 +272,7 @@ class LightCone {
       for (slong b = a; b < rows; ++b) {
         const std::size_t e = static_cast<std::size_t>(a * rows + b);
         for (std::size_t ip = 0; ip < nres_; ++ip) r[ip] = Gres_[multimod::lane_index(rr, e, ip)];
-        fmpz_multi_CRT_ui(fmpz_mat_entry(G, a, b), r.data(), comb_->comb, comb_->temp, 1);
+        fmpz_multi_CRT_ui(fmpz_mat_entry(G, a, b), r.data(), comb_->comb(), comb_->temp(), 1);
         if (b != a) fmpz_set(fmpz_mat_entry(G, b, a), fmpz_mat_entry(G, a, b));
       }
   }
@@ -362,17 +286,17 @@ class LightCone {
       return;
     }
     FmpzMat RD(rows, n);
-    const fmpz_mat_struct* W = R_->m;
+    const fmpz_mat_struct* W = R_->get();
     if (!pr_.unit_D) {
       for (slong r = 0; r < rows; ++r)
         for (slong j = 0; j < n; ++j)
-          fmpz_mul(fmpz_mat_entry(RD.m, r, j), fmpz_mat_entry(R_->m, r, j),
-                   pr_.D[static_cast<std::size_t>(support_[static_cast<std::size_t>(j)])].v);
-      W = RD.m;
+          fmpz_mul(fmpz_mat_entry(RD.get(), r, j), fmpz_mat_entry(R_->get(), r, j),
+                   pr_.D[static_cast<std::size_t>(support_[static_cast<std::size_t>(j)])].get());
+      W = RD.get();
     }
     for (slong a = 0; a < rows; ++a)
       for (slong b = a; b < rows; ++b) {
-        _fmpz_vec_dot(fmpz_mat_entry(G, a, b), fmpz_mat_entry(R_->m, a, 0), fmpz_mat_entry(W, b, 0), n);
+        _fmpz_vec_dot(fmpz_mat_entry(G, a, b), fmpz_mat_entry(R_->get(), a, 0), fmpz_mat_entry(W, b, 0), n);
         if (b != a) fmpz_set(fmpz_mat_entry(G, b, a), fmpz_mat_entry(G, a, b));
       }
   }
@@ -386,9 +310,9 @@ class LightCone {
     std::vector<mp_limb_t> r(static_cast<std::size_t>(rows) * cols), w(cols, 1);
     for (slong a = 0; a < rows; ++a)
       for (std::size_t c = 0; c < cols; ++c)
-        r[static_cast<std::size_t>(a) * cols + c] = fmpz_fdiv_ui(fmpz_mat_entry(R_->m, a, static_cast<slong>(c)), p);
+        r[static_cast<std::size_t>(a) * cols + c] = fmpz_fdiv_ui(fmpz_mat_entry(R_->get(), a, static_cast<slong>(c)), p);
     if (!pr_.unit_D)
-      for (std::size_t c = 0; c < cols; ++c) w[c] = fmpz_fdiv_ui(pr_.D[static_cast<std::size_t>(support_[c])].v, p);
+      for (std::size_t c = 0; c < cols; ++c) w[c] = fmpz_fdiv_ui(pr_.D[static_cast<std::size_t>(support_[c])].get(), p);
     std::vector<mp_limb_t> rw(r);  // rows times the weights
     if (!pr_.unit_D)
       for (slong a = 0; a < rows; ++a)
@@ -412,15 +336,15 @@ class LightCone {
     Arb x;
     for (slong a = 0; a < rows; ++a)
       for (std::size_t c = 0; c < support_.size(); ++c) {
-        arb_set_round_fmpz(x.v, fmpz_mat_entry(R_->m, a, static_cast<slong>(c)), wp);
-        arb_sqr(x.v, x.v, wp);
-        if (!pr_.unit_D) arb_mul_fmpz(x.v, x.v, pr_.D[static_cast<std::size_t>(support_[c])].v, wp);
-        arb_add(d[static_cast<std::size_t>(a)].v, d[static_cast<std::size_t>(a)].v, x.v, wp);
+        arb_set_round_fmpz(x.get(), fmpz_mat_entry(R_->get(), a, static_cast<slong>(c)), wp);
+        arb_sqr(x.get(), x.get(), wp);
+        if (!pr_.unit_D) arb_mul_fmpz(x.get(), x.get(), pr_.D[static_cast<std::size_t>(support_[c])].get(), wp);
+        arb_add(d[static_cast<std::size_t>(a)].get(), d[static_cast<std::size_t>(a)].get(), x.get(), wp);
       }
   }
 
   std::int64_t bits() const {
-    const slong b = fmpz_mat_max_bits(R_->m);
+    const slong b = fmpz_mat_max_bits(R_->get());
     return b < 0 ? -b : b;
   }
   std::int64_t columns() const { return static_cast<std::int64_t>(support_.size()); }
@@ -446,27 +370,12 @@ class LightCone {
     Rres_.resize(entries * np);
     Dres_.resize(dvals_.size() * np);
     std::vector<const fmpz*> vals(entries);
-    for (std::size_t e = 0; e < entries; ++e) vals[e] = R_->m->entries + e;  // row-major (r, c)
+    for (std::size_t e = 0; e < entries; ++e) vals[e] = R_->get()->entries + e;  // row-major (r, c)
     const multimod::Moduli md = moduli(np);
     multimod::reduce(md, nres_, np, vals.data(), entries, Rres_.data());
     if (!dvals_.empty()) multimod::reduce(md, nres_, np, dvals_.data(), dvals_.size(), Dres_.data());
     nres_ = np;
   }
-
-  struct Comb {
-    fmpz_comb_t comb;
-    fmpz_comb_temp_t temp;
-    Comb(const mp_limb_t* primes, slong n) {
-      fmpz_comb_init(comb, primes, n);
-      fmpz_comb_temp_init(temp, comb);
-    }
-    ~Comb() {
-      fmpz_comb_temp_clear(temp);
-      fmpz_comb_clear(comb);
-    }
-    Comb(const Comb&) = delete;
-    Comb& operator=(const Comb&) = delete;
-  };
 
   const Problem& pr_;
   const SparseInt& S_;
@@ -485,7 +394,7 @@ class LightCone {
   std::size_t nres_ = 0, comb_np_ = 0;
   bool exact_only_ = false;
   std::vector<std::uint32_t> Rres_, Rspare_, Dres_, Gres_;
-  std::unique_ptr<Comb> comb_;
+  std::unique_ptr<flint::Comb> comb_;
 };
 
 // One t: symplectic eigenvalues and entropy from G = 2 Den sigma_A.
@@ -508,27 +417,27 @@ struct PointResult {
 // A relative error e of z changes f by at most about e: |z df/dz| <= 1.
 void mode_entropy(arb_t f, arb_t nu, const arb_t z, const fmpz_t c4, slong wp) {
   Arb u, w, t1, t2;
-  arb_div_fmpz(u.v, z, c4, wp);
-  arb_set_d(t1.v, 0.25);
-  arb_add(nu, u.v, t1.v, wp);
+  arb_div_fmpz(u.get(), z, c4, wp);
+  arb_set_d(t1.get(), 0.25);
+  arb_add(nu, u.get(), t1.get(), wp);
   arb_sqrt(nu, nu, wp);
-  arb_set_d(t1.v, 0.5);
-  arb_add(t1.v, nu, t1.v, wp);
-  arb_div(w.v, u.v, t1.v, wp);  // w = nu - 1/2
-  if (arf_cmp_si(arb_midref(w.v), 1) < 0) {
-    arb_log1p(t1.v, w.v, wp);
-    arb_add_ui(t2.v, w.v, 1, wp);
-    arb_mul(t1.v, t1.v, t2.v, wp);  // (1+w) log1p(w)
-    arb_log(t2.v, w.v, wp);
-    arb_mul(t2.v, t2.v, w.v, wp);  // w log w
-    arb_sub(f, t1.v, t2.v, wp);
+  arb_set_d(t1.get(), 0.5);
+  arb_add(t1.get(), nu, t1.get(), wp);
+  arb_div(w.get(), u.get(), t1.get(), wp);  // w = nu - 1/2
+  if (arf_cmp_si(arb_midref(w.get()), 1) < 0) {
+    arb_log1p(t1.get(), w.get(), wp);
+    arb_add_ui(t2.get(), w.get(), 1, wp);
+    arb_mul(t1.get(), t1.get(), t2.get(), wp);  // (1+w) log1p(w)
+    arb_log(t2.get(), w.get(), wp);
+    arb_mul(t2.get(), t2.get(), w.get(), wp);  // w log w
+    arb_sub(f, t1.get(), t2.get(), wp);
   } else {
-    arb_inv(t1.v, w.v, wp);
-    arb_log1p(t1.v, t1.v, wp);
-    arb_add_ui(t2.v, w.v, 1, wp);
-    arb_mul(t1.v, t1.v, t2.v, wp);  // (1+w) log1p(1/w)
-    arb_log(t2.v, w.v, wp);
-    arb_add(f, t1.v, t2.v, wp);
+    arb_inv(t1.get(), w.get(), wp);
+    arb_log1p(t1.get(), t1.get(), wp);
+    arb_add_ui(t2.get(), w.get(), 1, wp);
+    arb_mul(t1.get(), t1.get(), t2.get(), wp);  // (1+w) log1p(1/w)
+    arb_log(t2.get(), w.get(), wp);
+    arb_add(f, t1.get(), t2.get(), wp);
   }
 }
 
@@ -543,12 +452,12 @@ slong clog2(std::int64_t n) {
 void elementary_symmetric(std::vector<Arb>& e, const std::vector<const arb_struct*>& x, slong prec) {
   const std::size_t n = x.size();
   e = std::vector<Arb>(n + 1);
-  arb_one(e[0].v);
+  arb_one(e[0].get());
   Arb t;
   for (std::size_t i = 0; i < n; ++i)
     for (std::size_t j = i + 1; j >= 1; --j) {
-      arb_mul(t.v, e[j - 1].v, x[i], prec);
-      arb_add(e[j].v, e[j].v, t.v, prec);
+      arb_mul(t.get(), e[j - 1].get(), x[i], prec);
+      arb_add(e[j].get(), e[j].get(), t.get(), prec);
     }
 }
 
@@ -560,8 +469,6 @@ void elementary_symmetric(std::vector<Arb>& e, const std::vector<const arb_struc
 // not used in the reconstruction, checks the result; false on a mismatch.
 class ModularCharpoly {
  public:
-  ~ModularCharpoly() { drop_comb(); }
-
   // q from the exact G under the bound |q_i| < 2^bound_bits; false when the
   // guard prime disagrees.
   bool even_charpoly(fmpz_poly_t q, const fmpz_mat_t G, const LightCone& lc, slong k, slong bound_bits) {
@@ -604,7 +511,7 @@ class ModularCharpoly {
     for (slong u = 0; u < n; ++u)
       for (slong v = u; v < n; ++v) {
         if (decoupled && u < k && v >= k) continue;  // zero block
-        fmpz_multi_mod_ui(r.data(), fmpz_mat_entry(G, u, v), comb_, temp_);
+        fmpz_multi_mod_ui(r.data(), fmpz_mat_entry(G, u, v), comb_->comb(), comb_->temp());
         for (int side = 0; side < (u == v ? 1 : 2); ++side) {
           const slong row = side == 0 ? u : v, col = side == 0 ? v : u;  // G(row, col)
           if (decoupled) {
@@ -642,8 +549,8 @@ class ModularCharpoly {
     Fmpz c;
     for (slong i = 0; i <= k; ++i) {
       for (std::size_t ip = 0; ip < unp; ++ip) r[ip] = qres[multimod::lane_index(k1, static_cast<std::size_t>(i), ip)];
-      fmpz_multi_CRT_ui(c.v, r.data(), comb_, temp_, 1);
-      fmpz_poly_set_coeff_fmpz(q, i, c.v);
+      fmpz_multi_CRT_ui(c.get(), r.data(), comb_->comb(), comb_->temp(), 1);
+      fmpz_poly_set_coeff_fmpz(q, i, c.get());
     }
     // Guard prime (62-bit, outside both CRT sets): G mod it straight from the
     // exact R_t (not from G, so it also checks the multi-modular G), the
@@ -656,8 +563,8 @@ class ModularCharpoly {
             gq, [&](slong a, slong b) { return gmod[static_cast<std::size_t>(a * n + b)]; }, k, pg, false))
       return false;
     for (slong i = 0; i <= k; ++i) {
-      fmpz_poly_get_coeff_fmpz(c.v, q, i);
-      if (fmpz_fdiv_ui(c.v, pg) != gq[static_cast<std::size_t>(i)]) return false;
+      fmpz_poly_get_coeff_fmpz(c.get(), q, i);
+      if (fmpz_fdiv_ui(c.get(), pg) != gq[static_cast<std::size_t>(i)]) return false;
     }
     return fmpz_poly_degree(q) == k && fmpz_is_one(fmpz_poly_lead(q));
   }
@@ -669,44 +576,34 @@ class ModularCharpoly {
   static bool charpoly_mod(std::vector<mp_limb_t>& out, Entry entry, slong k, mp_limb_t p, bool decoupled) {
     const slong n = 2 * k;
     bool ok = true;
-    nmod_poly_t cp;
-    nmod_poly_init(cp, p);
+    flint::NModPoly cp(p);
     if (decoupled) {
-      nmod_mat_t X, Z, ZX;
-      nmod_mat_init(X, k, k, p);
-      nmod_mat_init(Z, k, k, p);
-      nmod_mat_init(ZX, k, k, p);
+      flint::NModMat X(k, k, p), Z(k, k, p), ZX(k, k, p);
       for (slong i = 0; i < k; ++i)
         for (slong j = 0; j < k; ++j) {
-          nmod_mat_entry(X, i, j) = entry(i, j);
-          nmod_mat_entry(Z, i, j) = entry(i + k, j + k);
+          nmod_mat_entry(X.get(), i, j) = entry(i, j);
+          nmod_mat_entry(Z.get(), i, j) = entry(i + k, j + k);
         }
-      nmod_mat_mul(ZX, Z, X);
-      nmod_mat_charpoly(cp, ZX);
-      ok = nmod_poly_degree(cp) == k;
-      for (slong i = 0; i <= k && ok; ++i) out[static_cast<std::size_t>(i)] = nmod_poly_get_coeff_ui(cp, i);
-      nmod_mat_clear(ZX);
-      nmod_mat_clear(Z);
-      nmod_mat_clear(X);
+      nmod_mat_mul(ZX.get(), Z.get(), X.get());
+      nmod_mat_charpoly(cp.get(), ZX.get());
+      ok = nmod_poly_degree(cp.get()) == k;
+      for (slong i = 0; i <= k && ok; ++i) out[static_cast<std::size_t>(i)] = nmod_poly_get_coeff_ui(cp.get(), i);
     } else {
-      nmod_mat_t A;
-      nmod_mat_init(A, n, n, p);
+      flint::NModMat A(n, n, p);
       for (slong i = 0; i < k; ++i)
         for (slong j = 0; j < n; ++j) {
-          nmod_mat_entry(A, i, j) = entry(i + k, j);
-          nmod_mat_entry(A, i + k, j) = nmod_neg(entry(i, j), A->mod);
+          nmod_mat_entry(A.get(), i, j) = entry(i + k, j);
+          nmod_mat_entry(A.get(), i + k, j) = nmod_neg(entry(i, j), A.get()->mod);
         }
-      nmod_mat_charpoly(cp, A);
-      ok = nmod_poly_degree(cp) == n;
+      nmod_mat_charpoly(cp.get(), A.get());
+      ok = nmod_poly_degree(cp.get()) == n;
       for (slong i = 0; i <= k && ok; ++i) {
-        mp_limb_t v = nmod_poly_get_coeff_ui(cp, 2 * i);
-        if ((k + i) % 2 != 0) v = nmod_neg(v, A->mod);
+        mp_limb_t v = nmod_poly_get_coeff_ui(cp.get(), 2 * i);
+        if ((k + i) % 2 != 0) v = nmod_neg(v, A.get()->mod);
         out[static_cast<std::size_t>(i)] = v;
-        if (i < k && nmod_poly_get_coeff_ui(cp, 2 * i + 1) != 0) ok = false;  // must be even
+        if (i < k && nmod_poly_get_coeff_ui(cp.get(), 2 * i + 1) != 0) ok = false;  // must be even
       }
-      nmod_mat_clear(A);
     }
-    nmod_poly_clear(cp);
     return ok;
   }
 
@@ -716,358 +613,16 @@ class ModularCharpoly {
   }
   void set_comb(slong np) {
     if (comb_np_ == np) return;
-    drop_comb();
-    fmpz_comb_init(comb_, primes_.data(), np);
-    fmpz_comb_temp_init(temp_, comb_);
+    comb_.reset();
+    comb_ = std::make_unique<flint::Comb>(primes_.data(), np);
     comb_np_ = np;
-  }
-  void drop_comb() {
-    if (comb_np_ == 0) return;
-    fmpz_comb_temp_clear(temp_);
-    fmpz_comb_clear(comb_);
-    comb_np_ = 0;
   }
 
   std::vector<std::uint64_t> primes_;  // the CRT primes, 28-bit
-  fmpz_comb_t comb_;
-  fmpz_comb_temp_t temp_;
+  std::unique_ptr<flint::Comb> comb_;
   slong comb_np_ = 0;
 };
 
-// x^n in prec-bit floating point (n small: repeated squaring).
-void arf_pow_ui_local(arf_t out, const arf_t x, ulong n, slong prec) {
-  Arf b, acc;
-  arf_one(acc.v);
-  arf_set(b.v, x);
-  while (n > 0) {
-    if (n & 1) arf_mul(acc.v, acc.v, b.v, prec, ARF_RND_NEAR);
-    n >>= 1;
-    if (n) arf_mul(b.v, b.v, b.v, prec, ARF_RND_NEAR);
-  }
-  arf_swap(out, acc.v);
-}
-
-// Exact value of f at the dyadic z = m 2^e, scaled to an integer:
-// returns v and the exponent x with f(z) = v 2^x (v = f(z) 2^(h d) for
-// e = -h < 0, the Horner sum with c_i 2^(h (d - i)); v = f(z), x = 0 for
-// e >= 0).
-void eval_dyadic(fmpz_t v, slong& x, const fmpz_poly_t f, const fmpz_t m, slong e, fmpz_t tmp) {
-  const slong d = fmpz_poly_degree(f);
-  fmpz_set(v, fmpz_poly_get_coeff_ptr(f, d));
-  if (e >= 0) {  // v z = (v m) 2^e: a short product and a shift, not a long product
-    for (slong i = d - 1; i >= 0; --i) {
-      fmpz_mul(v, v, m);
-      fmpz_mul_2exp(v, v, static_cast<ulong>(e));
-      fmpz_add(v, v, fmpz_poly_get_coeff_ptr(f, i));
-    }
-    x = 0;
-    return;
-  }
-  const slong h = -e;
-  for (slong i = d - 1; i >= 0; --i) {
-    fmpz_mul(v, v, m);
-    fmpz_mul_2exp(tmp, fmpz_poly_get_coeff_ptr(f, i), static_cast<ulong>(h * (d - i)));
-    fmpz_add(v, v, tmp);
-  }
-  x = -h * d;
-}
-
-// A complex number (re + i im) 2^e with a double mantissa and a 64-bit
-// exponent: Durand-Kerner on polynomials whose roots span thousands of
-// binary orders of magnitude, where arb's additions of numbers of very
-// different size cost a shift of the whole mantissa.
-struct XComplex {
-  double re = 0, im = 0;
-  std::int64_t e = 0;
-  bool zero() const { return re == 0 && im == 0; }
-  void normalize() {
-    const double m = std::max(std::fabs(re), std::fabs(im));
-    if (m == 0) {
-      e = 0;
-      return;
-    }
-    int k = 0;
-    std::frexp(m, &k);
-    re = std::ldexp(re, -k);
-    im = std::ldexp(im, -k);
-    e += k;
-  }
-};
-XComplex xmul(const XComplex& a, const XComplex& b) {
-  XComplex r{a.re * b.re - a.im * b.im, a.re * b.im + a.im * b.re, a.e + b.e};
-  r.normalize();
-  return r;
-}
-XComplex xdiv(const XComplex& a, const XComplex& b) {
-  const double den = b.re * b.re + b.im * b.im;
-  XComplex r{(a.re * b.re + a.im * b.im) / den, (a.im * b.re - a.re * b.im) / den, a.e - b.e};
-  r.normalize();
-  return r;
-}
-XComplex xadd(const XComplex& a, const XComplex& b) {
-  if (a.zero()) return b;
-  if (b.zero()) return a;
-  const std::int64_t d = a.e - b.e;
-  if (d > 80) return a;
-  if (d < -80) return b;
-  XComplex r;
-  if (d >= 0) {
-    r = {a.re + std::ldexp(b.re, static_cast<int>(-d)), a.im + std::ldexp(b.im, static_cast<int>(-d)), a.e};
-  } else {
-    r = {std::ldexp(a.re, static_cast<int>(d)) + b.re, std::ldexp(a.im, static_cast<int>(d)) + b.im, b.e};
-  }
-  r.normalize();
-  return r;
-}
-XComplex xneg(const XComplex& a) { return {-a.re, -a.im, a.e}; }
-
-// Certified enclosures of the d roots of f when they are real, positive and
-// simple, to target_bits relative bits, without arb's root finder: starting
-// points from the Newton polygon, Durand-Kerner in XComplex to about double
-// precision, then per root Newton steps on the real line with f and f'
-// evaluated exactly at dyadic points, and a proof by exact signs: f changes
-// sign across each of d disjoint intervals [r (1 - 2^-b), r (1 + 2^-b)],
-// b = target_bits + 8, so each holds exactly one root (f has degree d) and f
-// is squarefree. False when any of that does not work out (roots closer than
-// double precision can tell apart, a non-real approximation, a failed sign
-// test); the caller then uses positive_real_roots.
-bool separated_real_roots(acb_ptr roots, const fmpz_poly_t f, slong target_bits) {
-  const slong d = fmpz_poly_degree(f), len = d + 1;
-  if (d < 1) return false;
-  const int lead = fmpz_sgn(fmpz_poly_lead(f));
-  std::vector<XComplex> c(static_cast<std::size_t>(len));
-  std::vector<double> l(static_cast<std::size_t>(len));
-  for (slong i = 0; i < len; ++i) {
-    const fmpz* ci = fmpz_poly_get_coeff_ptr(f, i);
-    // All roots real and positive: the signs alternate.
-    if (fmpz_sgn(ci) != ((d - i) % 2 == 0 ? lead : -lead)) return false;
-    slong e = 0;
-    const double mnt = fmpz_get_d_2exp(&e, ci);
-    c[static_cast<std::size_t>(i)] = XComplex{mnt, 0.0, static_cast<std::int64_t>(e)};
-    c[static_cast<std::size_t>(i)].normalize();
-    l[static_cast<std::size_t>(i)] = std::log2(std::fabs(mnt)) + static_cast<double>(e);
-  }
-  // Starting points: on each edge of the upper hull of (i, log2 |f_i|), its
-  // length in points on the circle of radius 2^-slope.
-  std::vector<slong> hull;
-  for (slong i = 0; i < len; ++i) {
-    while (hull.size() >= 2) {
-      const slong a = hull[hull.size() - 2], b = hull.back();
-      if ((l[static_cast<std::size_t>(b)] - l[static_cast<std::size_t>(a)]) * static_cast<double>(i - a) <=
-          (l[static_cast<std::size_t>(i)] - l[static_cast<std::size_t>(a)]) * static_cast<double>(b - a))
-        hull.pop_back();
-      else
-        break;
-    }
-    hull.push_back(i);
-  }
-  std::vector<XComplex> z;
-  for (std::size_t h = 0; h + 1 < hull.size(); ++h) {
-    const slong a = hull[h], b = hull[h + 1], m = b - a;
-    const double log2r = (l[static_cast<std::size_t>(a)] - l[static_cast<std::size_t>(b)]) / static_cast<double>(m);
-    const double fl = std::floor(log2r), sc = std::exp2(log2r - fl);
-    for (slong j = 0; j < m; ++j) {
-      const double th = 2 * std::numbers::pi * static_cast<double>(j) / static_cast<double>(m) + 0.4;
-      XComplex x{sc * std::cos(th), sc * std::sin(th), static_cast<std::int64_t>(fl)};
-      x.normalize();
-      z.push_back(x);
-    }
-  }
-  if (static_cast<slong>(z.size()) != d) return false;
-  // Durand-Kerner: z_i <- z_i - f(z_i) / (f_d prod_(j != i) (z_i - z_j)),
-  // until the steps are at double precision or for a fixed number of sweeps
-  // (close roots stall above it; the exact Newton steps below take over).
-  bool converged = false;
-  for (int it = 0; it < 60 + 10 * static_cast<int>(d) && !converged; ++it) {
-    converged = true;
-    for (slong i = 0; i < d; ++i) {
-      XComplex p = c[static_cast<std::size_t>(d)];
-      for (slong k = d - 1; k >= 0; --k) p = xadd(xmul(p, z[static_cast<std::size_t>(i)]), c[static_cast<std::size_t>(k)]);
-      XComplex q = c[static_cast<std::size_t>(d)];
-      for (slong j = 0; j < d; ++j)
-        if (j != i) q = xmul(q, xadd(z[static_cast<std::size_t>(i)], xneg(z[static_cast<std::size_t>(j)])));
-      if (q.zero()) return false;
-      const XComplex step = xdiv(p, q);
-      z[static_cast<std::size_t>(i)] = xadd(z[static_cast<std::size_t>(i)], xneg(step));
-      // relative step size
-      if (!step.zero() && static_cast<double>(step.e - z[static_cast<std::size_t>(i)].e) > -44) converged = false;
-    }
-  }
-  for (const XComplex& x : z)
-    if (!(x.re > 0) || std::fabs(x.im) > std::ldexp(x.re, -20)) return false;  // not real and positive
-  std::sort(z.begin(), z.end(), [](const XComplex& a, const XComplex& b) {
-    return a.e != b.e ? a.e < b.e : a.re < b.re;  // normalized: the exponent orders first
-  });
-  const slong bits = target_bits + 8, wp = bits + 64;
-  Fmpz m, v, tmp;
-  Arf r, q, x, y, pv, dv, pw, term;
-  std::vector<Arf> cw(static_cast<std::size_t>(len));  // the coefficients rounded to wp bits
-  for (slong i = 0; i < len; ++i)
-    arf_set_round_fmpz(cw[static_cast<std::size_t>(i)].v, fmpz_poly_get_coeff_ptr(f, i), wp, ARF_RND_NEAR);
-  std::vector<Arf> lo(static_cast<std::size_t>(d)), hi(static_cast<std::size_t>(d));
-  auto sign_at = [&](const arf_t at) {
-    slong e = 0, xv = 0;
-    arf_get_fmpz_2exp(m.v, &e, at);
-    eval_dyadic(v.v, xv, f, m.v, e, tmp.v);
-    return fmpz_sgn(v.v);
-  };
-  std::vector<slong> keep;
-  for (slong j = 0; j < d; ++j) {
-    arf_set_d(r.v, z[static_cast<std::size_t>(j)].re);
-    arf_mul_2exp_si(r.v, r.v, static_cast<slong>(z[static_cast<std::size_t>(j)].e));
-    // Near this root only the terms within wp + 20 bits of the largest
-    // |f_i r^i| matter for the Newton steps (the proof below is exact).
-    const double s = static_cast<double>(z[static_cast<std::size_t>(j)].e);
-    double top = -INFINITY;
-    for (slong i = 0; i < len; ++i) top = std::max(top, l[static_cast<std::size_t>(i)] + s * static_cast<double>(i));
-    keep.clear();
-    for (slong i = 0; i < len; ++i)
-      if (l[static_cast<std::size_t>(i)] + s * static_cast<double>(i) > top - static_cast<double>(wp + 20)) keep.push_back(i);
-    bool settled = false;
-    for (int it = 0; it < 40 && !settled; ++it) {
-      // f(r) and f'(r) over the kept terms, in wp-bit floating point.
-      arf_zero(pv.v);
-      arf_zero(dv.v);
-      for (slong i : keep) {
-        arf_pow_ui_local(pw.v, r.v, static_cast<ulong>(i), wp);
-        arf_mul(term.v, cw[static_cast<std::size_t>(i)].v, pw.v, wp, ARF_RND_NEAR);
-        arf_add(pv.v, pv.v, term.v, wp, ARF_RND_NEAR);
-        if (i > 0) {
-          arf_pow_ui_local(pw.v, r.v, static_cast<ulong>(i - 1), wp);
-          arf_mul(term.v, cw[static_cast<std::size_t>(i)].v, pw.v, wp, ARF_RND_NEAR);
-          arf_mul_ui(term.v, term.v, static_cast<ulong>(i), wp, ARF_RND_NEAR);
-          arf_add(dv.v, dv.v, term.v, wp, ARF_RND_NEAR);
-        }
-      }
-      if (arf_is_zero(pv.v)) {
-        settled = true;
-        break;
-      }
-      if (arf_is_zero(dv.v)) return false;
-      arf_div(q.v, pv.v, dv.v, wp, ARF_RND_NEAR);  // f(r) / f'(r)
-      arf_sub(r.v, r.v, q.v, wp, ARF_RND_NEAR);
-      if (arf_sgn(r.v) <= 0) return false;
-      arf_abs(q.v, q.v);
-      arf_mul_2exp_si(x.v, r.v, -(bits + 16));
-      settled = arf_cmp(q.v, x.v) < 0;  // |step| < r 2^-(bits + 16)
-    }
-    if (!settled) return false;
-    // [r (1 - 2^-bits), r (1 + 2^-bits)], dyadic ends rounded outwards.
-    arf_mul_2exp_si(x.v, r.v, -bits);
-    arf_sub(lo[static_cast<std::size_t>(j)].v, r.v, x.v, wp + 8, ARF_RND_DOWN);
-    arf_add(hi[static_cast<std::size_t>(j)].v, r.v, x.v, wp + 8, ARF_RND_UP);
-    const int s_lo = sign_at(lo[static_cast<std::size_t>(j)].v), s_hi = sign_at(hi[static_cast<std::size_t>(j)].v);
-    if (s_lo == 0 || s_hi == 0 || s_lo == s_hi) return false;
-    if (j > 0 && arf_cmp(hi[static_cast<std::size_t>(j - 1)].v, lo[static_cast<std::size_t>(j)].v) >= 0) return false;
-    // Midpoint r, radius r 2^(1-bits): the ball covers the interval (whose
-    // ends were rounded outwards by far less than r 2^-bits).
-    arb_set_arf(acb_realref(roots + j), r.v);
-    arf_mul_2exp_si(x.v, x.v, 1);
-    arb_add_error_arf(acb_realref(roots + j), x.v);
-    arb_zero(acb_imagref(roots + j));
-  }
-  return true;  // d disjoint sign changes of a degree-d polynomial: one simple root in each
-}
-
-// Certified enclosures of the d roots of a squarefree integer polynomial f
-// whose roots are all real and positive (here z_j = mu_j^2 - Den^2 > 0), each
-// to at least `target_bits` relative bits, written to roots (imaginary parts
-// exactly 0). The roots span hundreds of orders of magnitude, which makes
-// generic starting points (as in arb_fmpz_poly_complex_roots) very slow, so
-// the starting points come from the Newton polygon of f (|z| ~ 2^-slope on
-// each edge, spread on a circle as in Bini's method); arb then refines them
-// (Durand-Kerner sweeps), isolates them rigorously
-// (_acb_poly_validate_roots) and proves them real
-// (_acb_poly_validate_real_roots). Returns false if that did not succeed
-// within max_tries precision doublings, or if a root is not real (which theory
-// excludes); the caller then uses arb_fmpz_poly_complex_roots.
-bool positive_real_roots(acb_ptr roots, const fmpz_poly_t f, slong target_bits, int max_tries) {
-  const slong d = fmpz_poly_degree(f), len = d + 1;
-  if (d < 1) return false;
-  std::vector<double> l(static_cast<std::size_t>(len));
-  for (slong i = 0; i < len; ++i) {
-    const fmpz* c = fmpz_poly_get_coeff_ptr(f, i);
-    if (fmpz_is_zero(c)) return false;  // impossible with all roots > 0
-    slong e = 0;
-    const double m = fmpz_get_d_2exp(&e, c);
-    l[static_cast<std::size_t>(i)] = std::log2(std::fabs(m)) + static_cast<double>(e);
-  }
-  // Upper convex hull of (i, log2 |f_i|).
-  std::vector<slong> hull;
-  for (slong i = 0; i < len; ++i) {
-    while (hull.size() >= 2) {
-      const slong a = hull[hull.size() - 2], b = hull.back();
-      const double la = l[static_cast<std::size_t>(a)], lb = l[static_cast<std::size_t>(b)],
-                   lc = l[static_cast<std::size_t>(i)];
-      if ((lb - la) * static_cast<double>(i - a) <= (lc - la) * static_cast<double>(b - a))
-        hull.pop_back();
-      else
-        break;
-    }
-    hull.push_back(i);
-  }
-  AcbVec init(d), poly(len), prev(d);
-  Acb step;
-  Mag ms, mr;
-  {
-    slong idx = 0;
-    Arb re, im;
-    for (std::size_t h = 0; h + 1 < hull.size(); ++h) {
-      const slong a = hull[h], b = hull[h + 1], m = b - a;
-      const double log2r =
-          (l[static_cast<std::size_t>(a)] - l[static_cast<std::size_t>(b)]) / static_cast<double>(m);
-      const double fl = std::floor(log2r);
-      for (slong j = 0; j < m; ++j) {
-        const double th = 2 * std::numbers::pi * static_cast<double>(j) / static_cast<double>(m) + 0.4;
-        const double sc = std::exp2(log2r - fl);
-        arb_set_d(re.v, sc * std::cos(th));
-        arb_set_d(im.v, sc * std::sin(th));
-        arb_mul_2exp_si(re.v, re.v, static_cast<slong>(fl));
-        arb_mul_2exp_si(im.v, im.v, static_cast<slong>(fl));
-        acb_set_arb_arb(init.p + idx, re.v, im.v);
-        ++idx;
-      }
-    }
-    if (idx != d) return false;
-  }
-  for (slong prec = target_bits + 32, tries = 0; tries < max_tries; prec *= 2, ++tries) {
-    for (slong i = 0; i < len; ++i) acb_set_round_fmpz(poly.p + i, fmpz_poly_get_coeff_ptr(f, i), prec);
-    // Durand-Kerner sweeps until every root moved by < 2^(16-prec) relative
-    // (_acb_poly_find_roots stops on an absolute criterion, which leaves the
-    // small roots of such wide-range polynomials unconverged).
-    for (slong i = 0; i < d; ++i) acb_set(roots + i, init.p + i);
-    for (slong it = 0; it < 40 + 10 * d; ++it) {
-      for (slong i = 0; i < d; ++i) acb_get_mid(prev.p + i, roots + i);
-      _acb_poly_refine_roots_durand_kerner(roots, poly.p, len, prec);
-      bool moved = false;
-      for (slong i = 0; i < d && !moved; ++i) {
-        acb_sub(step.v, roots + i, prev.p + i, prec);
-        acb_get_mag(ms.v, step.v);
-        acb_get_mag_lower(mr.v, roots + i);
-        mag_mul_2exp_si(mr.v, mr.v, 16 - prec);
-        moved = mag_cmp(ms.v, mr.v) > 0;
-      }
-      if (!moved) break;
-    }
-    const slong isolated = _acb_poly_validate_roots(roots, poly.p, len, prec);
-    // As in arb_fmpz_poly_complex_roots: with all roots isolated,
-    // _acb_poly_validate_real_roots proves that each enclosure meeting the
-    // real line holds a real root; then its imaginary part is exactly 0.
-    bool ok = isolated == d && _acb_poly_validate_real_roots(roots, poly.p, len, prec);
-    for (slong i = 0; i < d && ok; ++i)
-      if (!arb_contains_zero(acb_imagref(roots + i))) ok = false;  // non-real: leave to the fallback
-    for (slong i = 0; i < d && ok; ++i)
-      if (!arb_is_positive(acb_realref(roots + i)) ||
-          arb_rel_accuracy_bits(acb_realref(roots + i)) < target_bits)
-        ok = false;
-    if (ok) {
-      for (slong i = 0; i < d; ++i) arb_zero(acb_imagref(roots + i));
-      return true;
-    }
-    for (slong i = 0; i < d; ++i) acb_get_mid(init.p + i, roots + i);  // restart from here
-  }
-  return false;
-}
 
 // Symplectic spectrum and entropy of sigma_A(t) = G / (2 Den), t = 0, 1, ...
 // in order. Besides the answer it keeps upper bounds Y_j >= mu_j(t)^2 for the
@@ -1075,9 +630,9 @@ bool positive_real_roots(acb_ptr roots, const fmpz_poly_t f, slong target_bits, 
 class SpectrumSolver {
  public:
   SpectrumSolver(std::int64_t k, const fmpz_t den, const arb_t growth2) : k_(k) {
-    fmpz_mul(den2_.v, den, den);
-    fmpz_mul_ui(c4_.v, den2_.v, 4);
-    arb_set(growth2_.v, growth2);
+    fmpz_mul(den2_.get(), den, den);
+    fmpz_mul_ui(c4_.get(), den2_.get(), 4);
+    arb_set(growth2_.get(), growth2);
   }
 
   std::int64_t fallbacks() const { return fallbacks_; }
@@ -1090,36 +645,36 @@ class SpectrumSolver {
     FmpzPoly q;
     FmpzMat G(2 * k, 2 * k);
     if (opt.reference) {
-      lc.gram_dot(G.m);
-      flint_charpoly(q.p, G.m);
+      lc.gram_dot(G.get());
+      flint_charpoly(q.get(), G.get());
     } else {
-      lc.gram(G.m);
-      if (!ModularOK(q.p, G.m, lc)) {
+      lc.gram(G.get());
+      if (!ModularOK(q.get(), G.get(), lc)) {
         // The guard prime disagreed (a wrong bound or G would be a bug):
         // recompute with FLINT's own Hadamard-bounded modular characteristic
         // polynomial of the G of the big-integer dot products.
         ++fallbacks_;
-        lc.gram_dot(G.m);
-        flint_charpoly(q.p, G.m);
+        lc.gram_dot(G.get());
+        flint_charpoly(q.get(), G.get());
       }
     }
     // Q(z) = q(z + Den^2): roots z_j = mu_j^2 - Den^2 = 4 Den^2 (nu_j^2 - 1/4) >= 0.
     FmpzPoly Q;
-    fmpz_poly_taylor_shift(Q.p, q.p, den2_.v);
+    fmpz_poly_taylor_shift(Q.get(), q.get(), den2_.get());
     // nu = 1/2 exactly <=> z = 0: split off z^m symbolically.
     slong m = 0;
-    while (m <= k && fmpz_is_zero(fmpz_poly_get_coeff_ptr(Q.p, m))) ++m;
+    while (m <= k && fmpz_is_zero(fmpz_poly_get_coeff_ptr(Q.get(), m))) ++m;
     if (m > k) throw std::logic_error("gaussian_entropy_curve: zero characteristic polynomial");
     out.pure = m;
-    fmpz_poly_shift_right(Q.p, Q.p, m);
+    fmpz_poly_shift_right(Q.get(), Q.get(), m);
     std::vector<ModeBall> nus(static_cast<std::size_t>(m), ModeBall{0.5, 0.0});
     // Next step's bounds: Den^2 for each pure mode.
     std::vector<std::unique_ptr<Arb>> Y;
     for (slong i = 0; i < m; ++i) {
       Y.push_back(std::make_unique<Arb>());
-      arb_set_fmpz(Y.back()->v, den2_.v);
+      arb_set_fmpz(Y.back()->get(), den2_.get());
     }
-    if (fmpz_poly_degree(Q.p) <= 0) {
+    if (fmpz_poly_degree(Q.get()) <= 0) {
       out.prec = 0;
       if (opt.keep_spectrum) out.nu = std::move(nus);
       set_bounds(std::move(Y));
@@ -1136,16 +691,16 @@ class SpectrumSolver {
     PolyFactor fac;
     FmpzPoly half;
     int factored = 0;  // 0: Q itself, 1: Q = half^2, 2: squarefree factorisation
-    std::vector<std::pair<const fmpz_poly_struct*, slong>> parts = {{Q.p, 1}};
+    std::vector<std::pair<const fmpz_poly_struct*, slong>> parts = {{Q.get(), 1}};
     auto factor = [&]() {
       parts.clear();
-      if (factored == 0 && fmpz_poly_degree(Q.p) % 2 == 0 && fmpz_poly_sqrt(half.p, Q.p)) {
-        parts.emplace_back(half.p, 2);
+      if (factored == 0 && fmpz_poly_degree(Q.get()) % 2 == 0 && fmpz_poly_sqrt(half.get(), Q.get())) {
+        parts.emplace_back(half.get(), 2);
         factored = 1;
         return;
       }
-      fmpz_poly_factor_squarefree(fac.f, Q.p);
-      for (slong i = 0; i < fac.f->num; ++i) parts.emplace_back(fac.f->p + i, fac.f->exp[i]);
+      fmpz_poly_factor_squarefree(fac.get(), Q.get());
+      for (slong i = 0; i < fac.get()->num; ++i) parts.emplace_back(fac.get()->p + i, fac.get()->exp[i]);
       factored = 2;
     };
     if (opt.reference) {
@@ -1161,7 +716,7 @@ class SpectrumSolver {
     Arb S, f, nu, y;
     bool have_bounds = false;
     for (;;) {
-      arb_zero(S.v);
+      arb_zero(S.get());
       bool ok = true;
       std::vector<std::pair<double, double>> nu_here;
       std::vector<std::unique_ptr<Arb>> Yr;
@@ -1173,20 +728,20 @@ class SpectrumSolver {
         if (deg <= 0) continue;
         AcbVec roots(deg);
         if (opt.reference) {
-          arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
-        } else if (!(opt.fast_roots && separated_real_roots(roots.p, fi, prec))) {
+          arb_fmpz_poly_complex_roots(roots.get(), fi, 0, prec);
+        } else if (!(opt.fast_roots && separated_positive_roots(roots.get(), fi, prec))) {
           if (factored < 2) {  // maybe not squarefree: factor (further) and redo this precision
             factor();
             refactored = true;
             break;
           }
-          if (!positive_real_roots(roots.p, fi, prec, 5)) {
+          if (!validated_positive_roots(roots.get(), fi, prec, 5)) {
             ++root_fallbacks_;
-            arb_fmpz_poly_complex_roots(roots.p, fi, 0, prec);
+            arb_fmpz_poly_complex_roots(roots.get(), fi, 0, prec);
           }
         }
         for (slong r = 0; r < deg && ok; ++r) {
-          const acb_struct* z = roots.p + r;
+          const acb_struct* z = roots[r];
           if (!arb_is_zero(acb_imagref(z)))
             throw std::logic_error("gaussian_entropy_curve: non-real symplectic eigenvalue (internal error)");
           if (arb_is_negative(acb_realref(z)))
@@ -1196,28 +751,28 @@ class SpectrumSolver {
             ok = false;  // enclosure still touches 0: more precision
             break;
           }
-          mode_entropy(f.v, nu.v, acb_realref(z), c4_.v, prec + 32);
-          arb_addmul_si(S.v, f.v, mult, prec + 32);
-          arb_add_fmpz(y.v, acb_realref(z), den2_.v, prec + 32);  // mu^2
+          mode_entropy(f.get(), nu.get(), acb_realref(z), c4_.get(), prec + 32);
+          arb_addmul_si(S.get(), f.get(), mult, prec + 32);
+          arb_add_fmpz(y.get(), acb_realref(z), den2_.get(), prec + 32);  // mu^2
           for (slong e = 0; e < mult; ++e) {
             Yr.push_back(std::make_unique<Arb>());
-            arb_set(Yr.back()->v, y.v);
+            arb_set(Yr.back()->get(), y.get());
           }
           if (opt.keep_spectrum) {
-            const auto [mid, rad] = to_double_with_radius(nu.v);
+            const auto [mid, rad] = ball_to_double(nu.get());
             for (slong e = 0; e < mult; ++e) nu_here.emplace_back(mid, rad);
           }
         }
       }
       if (refactored) continue;  // same precision, now on the squarefree parts
       if (ok) {
-        const auto [mid, rad] = to_double_with_radius(S.v);
+        const auto [mid, rad] = ball_to_double(S.get());
         out.entropy = mid;
         out.radius = rad;
         out.prec = prec;
         // The target is on the enclosure; rounding its midpoint to double
         // (half an ulp, included in `radius`) cannot be reduced.
-        out.met = mag_get_d(arb_radref(S.v)) <= opt.target_radius;  // rounds up
+        out.met = mag_get_d(arb_radref(S.get())) <= opt.target_radius;  // rounds up
         if (opt.keep_spectrum) {
           out.nu = nus;
           for (const auto& [a, b] : nu_here) out.nu.push_back(ModeBall{a, b});
@@ -1225,7 +780,7 @@ class SpectrumSolver {
         std::vector<std::unique_ptr<Arb>> Yall;
         for (const auto& p : Y) {
           Yall.push_back(std::make_unique<Arb>());
-          arb_set(Yall.back()->v, p->v);
+          arb_set(Yall.back()->get(), p->get());
         }
         for (auto& p : Yr) Yall.push_back(std::move(p));
         set_bounds(std::move(Yall));
@@ -1261,20 +816,20 @@ class SpectrumSolver {
     FmpzMat JG(n, n);
     for (slong i = 0; i < k; ++i)
       for (slong j = 0; j < n; ++j) {
-        fmpz_set(fmpz_mat_entry(JG.m, i, j), fmpz_mat_entry(G, i + k, j));
-        neg(fmpz_mat_entry(JG.m, i + k, j), fmpz_mat_entry(G, i, j));
+        fmpz_set(fmpz_mat_entry(JG.get(), i, j), fmpz_mat_entry(G, i + k, j));
+        neg(fmpz_mat_entry(JG.get(), i + k, j), fmpz_mat_entry(G, i, j));
       }
-    FmpzPoly cp;
-    fmpz_mat_charpoly(cp.p, JG.m);
+    FmpzPoly cp;  // freshly zero, as FLINT 2.9's fmpz_mat_charpoly wants (unit_circle.cpp)
+    fmpz_mat_charpoly(cp.get(), JG.get());
     fmpz_poly_zero(q);
     Fmpz c;
     for (slong i = 0; i <= k; ++i) {
-      fmpz_poly_get_coeff_fmpz(c.v, cp.p, 2 * i);
-      if ((k + i) % 2 != 0) neg(c.v, c.v);
-      fmpz_poly_set_coeff_fmpz(q, i, c.v);
+      fmpz_poly_get_coeff_fmpz(c.get(), cp.get(), 2 * i);
+      if ((k + i) % 2 != 0) neg(c.get(), c.get());
+      fmpz_poly_set_coeff_fmpz(q, i, c.get());
       if (i < k) {
-        fmpz_poly_get_coeff_fmpz(c.v, cp.p, 2 * i + 1);
-        if (!fmpz_is_zero(c.v))
+        fmpz_poly_get_coeff_fmpz(c.get(), cp.get(), 2 * i + 1);
+        if (!fmpz_is_zero(c.get()))
           throw std::logic_error(
               "gaussian_entropy_curve: characteristic polynomial of J sigma_A is not even");
       }
@@ -1293,7 +848,7 @@ class SpectrumSolver {
   slong coefficient_bound_bits(const std::vector<Arb>& diag) {
     const slong k = k_, n = 2 * k, wp = 64;
     std::vector<const arb_struct*> dp;
-    for (slong a = 0; a < n; ++a) dp.push_back(diag[static_cast<std::size_t>(a)].v);
+    for (slong a = 0; a < n; ++a) dp.push_back(diag[static_cast<std::size_t>(a)].get());
     std::vector<Arb> eh;
     elementary_symmetric(eh, dp, wp);
     std::vector<Arb> eg;
@@ -1302,22 +857,22 @@ class SpectrumSolver {
     if (grow) {
       std::vector<const arb_struct*> yp;
       for (slong j = 0; j < k; ++j) {
-        arb_mul(gy[static_cast<std::size_t>(j)].v, Yprev_[static_cast<std::size_t>(j)]->v, growth2_.v, wp);
-        yp.push_back(gy[static_cast<std::size_t>(j)].v);
+        arb_mul(gy[static_cast<std::size_t>(j)].get(), Yprev_[static_cast<std::size_t>(j)]->get(), growth2_.get(), wp);
+        yp.push_back(gy[static_cast<std::size_t>(j)].get());
       }
       elementary_symmetric(eg, yp, wp);
     }
     slong e = 1;
     Arf ub, ub2;
     for (slong i = 0; i <= k; ++i) {
-      arb_get_ubound_arf(ub.v, eh[static_cast<std::size_t>(2 * i)].v, wp);
+      arb_get_ubound_arf(ub.get(), eh[static_cast<std::size_t>(2 * i)].get(), wp);
       if (grow) {
-        arb_get_ubound_arf(ub2.v, eg[static_cast<std::size_t>(i)].v, wp);
-        if (arf_cmp(ub2.v, ub.v) < 0) arf_set(ub.v, ub2.v);
+        arb_get_ubound_arf(ub2.get(), eg[static_cast<std::size_t>(i)].get(), wp);
+        if (arf_cmp(ub2.get(), ub.get()) < 0) arf_set(ub.get(), ub2.get());
       }
-      if (!arf_is_finite(ub.v))
+      if (!arf_is_finite(ub.get()))
         throw std::logic_error("gaussian_entropy_curve: non-finite coefficient bound");
-      e = std::max(e, arf_abs_bound_lt_2exp_si(ub.v) + 1);
+      e = std::max(e, arf_abs_bound_lt_2exp_si(ub.get()) + 1);
     }
     return e;
   }
@@ -1326,15 +881,15 @@ class SpectrumSolver {
   // descending: the j-th largest upper end bounds the j-th largest mu^2.
   void set_bounds(std::vector<std::unique_ptr<Arb>> Y) {
     std::vector<Arf> ups(Y.size());
-    for (std::size_t j = 0; j < Y.size(); ++j) arb_get_ubound_arf(ups[j].v, Y[j]->v, 64);
+    for (std::size_t j = 0; j < Y.size(); ++j) arb_get_ubound_arf(ups[j].get(), Y[j]->get(), 64);
     std::vector<std::size_t> idx(Y.size());
     std::iota(idx.begin(), idx.end(), std::size_t{0});
     std::sort(idx.begin(), idx.end(),
-              [&](std::size_t a, std::size_t b) { return arf_cmp(ups[a].v, ups[b].v) > 0; });
+              [&](std::size_t a, std::size_t b) { return arf_cmp(ups[a].get(), ups[b].get()) > 0; });
     std::vector<std::unique_ptr<Arb>> U;
     for (std::size_t j : idx) {
       U.push_back(std::make_unique<Arb>());
-      arb_set_arf(U.back()->v, ups[j].v);
+      arb_set_arf(U.back()->get(), ups[j].get());
     }
     Yprev_ = std::move(U);
   }
@@ -1358,26 +913,26 @@ void growth_bound(arb_t g2, const SparseInt& S, const Problem& pr) {
   for (std::int64_t i = 0; i < n; ++i)
     for (std::int64_t e = S.rowptr[i]; e < S.rowptr[i + 1]; ++e) {
       const std::int64_t j = S.col[e];
-      arb_set_fmpz(x.v, pr.D[static_cast<std::size_t>(j)].v);
-      arb_div_fmpz(x.v, x.v, pr.D[static_cast<std::size_t>(i)].v, wp);
-      arb_sqrt(x.v, x.v, wp);
+      arb_set_fmpz(x.get(), pr.D[static_cast<std::size_t>(j)].get());
+      arb_div_fmpz(x.get(), x.get(), pr.D[static_cast<std::size_t>(i)].get(), wp);
+      arb_sqrt(x.get(), x.get(), wp);
       const std::int64_t v = S.val[e] < 0 ? -S.val[e] : S.val[e];
-      arb_mul_ui(x.v, x.v, static_cast<ulong>(v), wp);
-      arb_add(rows[static_cast<std::size_t>(i)].v, rows[static_cast<std::size_t>(i)].v, x.v, wp);
-      arb_add(cols[static_cast<std::size_t>(j)].v, cols[static_cast<std::size_t>(j)].v, x.v, wp);
+      arb_mul_ui(x.get(), x.get(), static_cast<ulong>(v), wp);
+      arb_add(rows[static_cast<std::size_t>(i)].get(), rows[static_cast<std::size_t>(i)].get(), x.get(), wp);
+      arb_add(cols[static_cast<std::size_t>(j)].get(), cols[static_cast<std::size_t>(j)].get(), x.get(), wp);
     }
   Arf mr, mc, u;
-  arf_zero(mr.v);
-  arf_zero(mc.v);
+  arf_zero(mr.get());
+  arf_zero(mc.get());
   for (std::int64_t i = 0; i < n; ++i) {
-    arb_get_ubound_arf(u.v, rows[static_cast<std::size_t>(i)].v, wp);
-    if (arf_cmp(u.v, mr.v) > 0) arf_set(mr.v, u.v);
-    arb_get_ubound_arf(u.v, cols[static_cast<std::size_t>(i)].v, wp);
-    if (arf_cmp(u.v, mc.v) > 0) arf_set(mc.v, u.v);
+    arb_get_ubound_arf(u.get(), rows[static_cast<std::size_t>(i)].get(), wp);
+    if (arf_cmp(u.get(), mr.get()) > 0) arf_set(mr.get(), u.get());
+    arb_get_ubound_arf(u.get(), cols[static_cast<std::size_t>(i)].get(), wp);
+    if (arf_cmp(u.get(), mc.get()) > 0) arf_set(mc.get(), u.get());
   }
-  arb_set_arf(g2, mr.v);
-  arb_set_arf(r.v, mc.v);
-  arb_mul(g2, g2, r.v, wp);  // g <= ||X||_1 ||X||_inf
+  arb_set_arf(g2, mr.get());
+  arb_set_arf(r.get(), mc.get());
+  arb_mul(g2, g2, r.get(), wp);  // g <= ||X||_1 ||X||_inf
   arb_mul(g2, g2, g2, wp);   // g^2
 }
 
@@ -1431,8 +986,8 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
   }
   LightCone lc(pr, S, opt.residue_budget_bytes);
   Arb g2;
-  growth_bound(g2.v, S, pr);
-  SpectrumSolver solver(pr.k, pr.den.v, g2.v);
+  growth_bound(g2.get(), S, pr);
+  SpectrumSolver solver(pr.k, pr.den.get(), g2.get());
   for (std::int64_t t = 0; t <= T; ++t) {
     if (t > 0) lc.step();
     PointResult r = solver.evaluate(lc, opt);

@@ -34,10 +34,11 @@
 //    steps on the terms that matter near each root, then a proof by exact
 //    integer signs of Q at the dyadic ends of d disjoint intervals (d sign
 //    changes of a degree-d polynomial: one simple root in each, so Q is
-//    squarefree). When that fails Q is squarefree-factored (FLINT) to find
-//    repeated nu's and the parts are tried again, then arb's path
-//    (Newton-polygon starts, Durand-Kerner, _acb_poly_validate_roots and
-//    _acb_poly_validate_real_roots), with arb_fmpz_poly_complex_roots as the
+//    squarefree; separated_positive_roots in real_roots.hpp). When that fails
+//    Q is squarefree-factored (FLINT) to find repeated nu's and the parts are
+//    tried again, then arb's path (Newton-polygon starts, Durand-Kerner,
+//    _acb_poly_validate_roots and _acb_poly_validate_real_roots;
+//    validated_positive_roots), with arb_fmpz_poly_complex_roots as the
 //    last fallback. p = 64 + 2 ceil(log2(k+1))
 //    at first: a relative error e of z moves f by at most ~e, so this is
 //    ~1e-19 per mode; p doubles until the entropy's radius meets the target

@@ -146,6 +146,10 @@ void integer_charpoly(fmpz_poly_struct* out, const SparseInt& A) {
     for (std::int64_t k = A.rowptr[static_cast<std::size_t>(i)]; k < A.rowptr[static_cast<std::size_t>(i + 1)]; ++k)
       fmpz_set_si(fmpz_mat_entry(m.get(), i, A.col[static_cast<std::size_t>(k)]),
                   static_cast<slong>(A.val[static_cast<std::size_t>(k)]));
+  // Issue 10 reports that FLINT 2.9's fmpz_mat_charpoly misbehaves when the
+  // output already holds a polynomial (not reproduced with Debian's 2.9.0-5
+  // on random matrices up to 60 x 60); start from zero regardless.
+  fmpz_poly_zero(out);
   fmpz_mat_charpoly(out, m.get());
 }
 

@@ -70,6 +70,50 @@ TEST(CircleCensus, KnownPolynomials) {
   EXPECT_THROW(circle_census(std::vector<std::int64_t>{0}), std::invalid_argument);
 }
 
+TEST(CircleCensus, CharpolyIntoAUsedPolynomial) {
+  // integer_charpoly writes det(x I - A) whatever `out` held before (it zeroes
+  // it first: the FLINT 2.9 fmpz_mat_charpoly note of issue 10; a guard, the
+  // misbehaviour itself was not reproduced with 2.9.0-5). A = [[2, 1],
+  // [1, 1]]: x^2 - 3x + 1 (by hand); 5x5 upper triangular with diagonal
+  // 1..5: prod (x - k) (by hand).
+  SparseInt A;
+  A.n = 2;
+  A.rowptr = {0, 2, 4};
+  A.col = {0, 1, 0, 1};
+  A.val = {2, 1, 1, 1};
+  flint::Poly out, want;
+  for (slong i = 0; i < 9; ++i) fmpz_poly_set_coeff_si(out.get(), i, 1000 + i);  // longer than the result
+  integer_charpoly(out.get(), A);
+  fmpz_poly_set_coeff_si(want.get(), 0, 1);
+  fmpz_poly_set_coeff_si(want.get(), 1, -3);
+  fmpz_poly_set_coeff_si(want.get(), 2, 1);
+  EXPECT_TRUE(fmpz_poly_equal(out.get(), want.get()));
+  // Again into the same (now used) polynomial, with a larger matrix.
+  SparseInt U;
+  U.n = 5;
+  U.rowptr = {0};
+  for (std::int64_t i = 0; i < 5; ++i) {
+    for (std::int64_t j = i; j < 5; ++j) {
+      U.col.push_back(j);
+      U.val.push_back(i == j ? i + 1 : 7);
+    }
+    U.rowptr.push_back(static_cast<std::int64_t>(U.col.size()));
+  }
+  integer_charpoly(out.get(), U);
+  fmpz_poly_one(want.get());
+  flint::Poly lin;
+  for (slong k = 1; k <= 5; ++k) {
+    fmpz_poly_zero(lin.get());
+    fmpz_poly_set_coeff_si(lin.get(), 1, 1);
+    fmpz_poly_set_coeff_si(lin.get(), 0, -k);
+    fmpz_poly_mul(want.get(), want.get(), lin.get());
+  }
+  EXPECT_TRUE(fmpz_poly_equal(out.get(), want.get()));
+  // And the small one again into the degree-5 result: no stale high terms.
+  integer_charpoly(out.get(), A);
+  EXPECT_EQ(fmpz_poly_degree(out.get()), 2);
+}
+
 TEST(CircleCensus, TracePolynomial) {
   // x^4 + 3x^3 + 5x^2 + 3x + 1 = x^2 T(x + 1/x) with T = y^2 + 3y + 3 (by hand).
   flint::Poly h, T;
