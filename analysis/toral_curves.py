@@ -1,5 +1,5 @@
 #!/usr/bin/python3
-"""Exact entanglement curves of a toral result file (layout version 2,
+"""Exact entanglement curves of a toral result file (layout versions 2 and 3,
 /entanglement, docs/layout.md), next to their bounds and rates.
 
 For one point, one panel per region: the certified Gaussian S_A(t) and the

@@ -1,12 +1,14 @@
-"""Opening a toral result file for the analysis scripts (layout version 2,
-docs/layout.md): one place for the checks and their one-line messages."""
+"""Opening a toral result file for the analysis scripts (layout versions 2
+and 3, docs/layout.md: version 3 added dimension scales and the schema
+attributes, and kept every dataset these scripts read): one place for the
+checks and their one-line messages."""
 from __future__ import annotations
 
 import os
 
 import numpy as np
 
-LAYOUT_VERSION = 2
+LAYOUT_VERSIONS = (2, 3)
 
 
 def open_result(path: str, error: type[Exception]):
@@ -26,7 +28,8 @@ def open_result(path: str, error: type[Exception]):
         f.close()
         raise error(f"not a toral result file (no layout_version attribute): {path}")
     version = int(np.asarray(f.attrs["layout_version"]).ravel()[0])
-    if version != LAYOUT_VERSION:
+    if version not in LAYOUT_VERSIONS:
         f.close()
-        raise error(f"unsupported layout_version {version} in {path} (this script reads {LAYOUT_VERSION})")
+        readable = " and ".join(str(v) for v in LAYOUT_VERSIONS)
+        raise error(f"unsupported layout_version {version} in {path} (this script reads {readable})")
     return f

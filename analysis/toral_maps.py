@@ -338,7 +338,7 @@ def plot_maps(data: RunData, g: Grid, out: str, title: str):
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog=PROG, description="Heat maps of lambda_max and ks_density from a toral result file.")
-    p.add_argument("file", help="toral result file (HDF5, layout version 1)")
+    p.add_argument("file", help="toral result file (HDF5, layout version 2 or 3)")
     p.add_argument("-o", "--output", help="PNG to write (default: FILE without .h5 + '.maps.png'; "
                                           "none with --table unless given)")
     p.add_argument("--x", help="/points parameter on the horizontal axis")

@@ -21,7 +21,7 @@ def write(path, *, stabilizer=True, gaussian=True):
     P, nR, nM, T = 3, 2, 2, 10
     t = np.arange(T + 1)
     with h5py.File(path, "w") as f:
-        f.attrs["layout_version"] = np.int64(2)
+        f.attrs["layout_version"] = np.int64(3)
         f.create_dataset("points/status", data=np.zeros(P, dtype=np.int32))
         e = f.create_group("entanglement")
         e["t"] = t
@@ -85,7 +85,7 @@ def test_plot_is_written_and_bad_input_is_one_line(tmp_path):
         assert len(r.stderr.strip().splitlines()) == 1 and fragment in r.stderr
     bare = tmp_path / "bare.h5"
     with h5py.File(bare, "w") as f:
-        f.attrs["layout_version"] = np.int64(2)
+        f.attrs["layout_version"] = np.int64(3)
     r = run(bare, "--table")
     assert r.returncode == 2 and "no /entanglement group" in r.stderr
 

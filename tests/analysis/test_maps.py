@@ -33,7 +33,7 @@ def _vlstr_list(values):
 
 
 def write_result(path, params: dict[str, np.ndarray], status, lambda_max, ks_density, *,
-                 swept, sweep_names, layout_version=2, K=3, bins=2, ells=(1, 2), Ns=(2,), bulk=False):
+                 swept, sweep_names, layout_version=3, K=3, bins=2, ells=(1, 2), Ns=(2,), bulk=False):
     """A complete layout-2 file (every required group and dataset)."""
     status = np.asarray(status, dtype=np.int32)
     P = status.size
@@ -309,9 +309,9 @@ def test_hdf5_but_not_toral(tmp_path, capsys):
     one_line_error(capsys, "not a toral result file")
 
 
-@pytest.mark.parametrize("version", [1, 3])
+@pytest.mark.parametrize("version", [1, 4])
 def test_wrong_layout_version(tmp_path, capsys, version):
-    # 1: a file of an older toral (per-point /bounds/cuts); 3: a later one
+    # 1: a file of an older toral (per-point /bounds/cuts); 4: a later one
     params = {"sweep": np.zeros(2, np.int64), "x": np.array([0, 1])}
     p = write_result(str(tmp_path / f"v{version}.h5"), params, [0, 0], [1.0, 2.0], [0.1, 0.2], swept=["x"],
                      sweep_names=["s"], layout_version=version)
@@ -322,7 +322,7 @@ def test_wrong_layout_version(tmp_path, capsys, version):
 def test_incomplete_file(tmp_path, capsys):
     p = str(tmp_path / "inc.h5")
     with h5py.File(p, "w") as f:
-        f.attrs["layout_version"] = np.int64(2)
+        f.attrs["layout_version"] = np.int64(3)
         f.create_group("points")
     assert tm.main([p]) == 2
     one_line_error(capsys, "/points/status")
@@ -360,3 +360,12 @@ def test_cli_subprocess(run_file, tmp_path):
     r = subprocess.run([sys.executable, SCRIPT, str(tmp_path / "missing.h5")], capture_output=True, text=True)
     assert r.returncode == 2
     assert r.stderr.strip().count("\n") == 0 and "no such file" in r.stderr
+
+
+def test_layout_version_2_still_read(tmp_path):
+    # Version 3 added dimension scales and the schema attributes and kept every
+    # dataset the scripts read (docs/layout.md): a version-2 file still opens.
+    params = {"sweep": np.zeros(2, np.int64), "x": np.array([0, 1])}
+    p = write_result(str(tmp_path / "v2.h5"), params, [0, 0], [1.0, 2.0], [0.1, 0.2], swept=["x"],
+                     sweep_names=["s"], layout_version=2)
+    assert tm.main([p, "--output", str(tmp_path / "v2.png")]) == 0
