@@ -543,7 +543,11 @@ std::vector<double> bloch_exponents(const Circuit& c, double k) {
   return std::vector<double>(r.lam, r.lam + 4);
 }
 
-Spectrum bloch_spectrum(const Circuit& c) {
+namespace {
+
+// bloch_spectrum, and (when `bands` is given) the per-momentum exponents
+// behind it: the bands of the ring.
+Spectrum ring_spectrum(const Circuit& c, Bands* bands) {
   if (c.boundary != Boundary::Periodic)
     throw ModelError(std::string("bloch_spectrum: boundary is ") + boundary_name(c.boundary) +
                      "; the Bloch decomposition of a finite ring needs periodic boundaries");
@@ -665,6 +669,25 @@ Spectrum bloch_spectrum(const Circuit& c) {
     r.sort_desc();
     for (int j = 0; j < 4; ++j) all.emplace_back(r.lam[j], r.err4[j]);
   }
+  if (bands) {
+    bands->exact = exact != nullptr;
+    bands->note = exact ? warning : why;
+    for (std::int64_t m = 0; m < N; ++m) {
+      const KExponents& r = per[static_cast<std::size_t>(m)];
+      bands->k.push_back(2.0 * kPi * static_cast<double>(m) / static_cast<double>(N));
+      for (int j = 0; j < 4; ++j) {
+        bands->exponents.push_back(r.lam[j]);
+        bands->errors.push_back(r.err4[j]);
+      }
+      // Exact: zeros are exactly 0.0, and a momentum on a root-of-unity kink
+      // carries colliding eigenvalues. Numerical: the error decides.
+      const bool all_zero = exact ? r.lam[0] == 0.0 : std::abs(r.lam[0]) <= r.err4[0];
+      const bool kink = exact && rz.per_momentum[static_cast<std::size_t>(m)] < 0;
+      bands->classes.push_back(static_cast<int>(!all_zero ? BlockClass::Hyperbolic
+                                                : kink    ? BlockClass::Parabolic
+                                                          : BlockClass::Elliptic));
+    }
+  }
   std::sort(all.begin(), all.end(), [](const auto& x, const auto& y) { return x.first > y.first; });
   for (const auto& [l, e] : all) {
     s.exponents.push_back(l);
@@ -684,6 +707,96 @@ Spectrum bloch_spectrum(const Circuit& c) {
     s.zero_rule = ZeroRule::Numerical;  // the analysis failed (`why`); flagged, not an error
   }
   return s;
+}
+
+}  // namespace
+
+Spectrum bloch_spectrum(const Circuit& c) { return ring_spectrum(c, nullptr); }
+
+Bands ring_bands(const Circuit& c) {
+  Bands b;
+  (void)ring_spectrum(c, &b);
+  return b;
+}
+
+Bands bulk_bands(const Circuit& c, const std::vector<double>& ks) {
+  const CellGates cg = extract_gates(c, "bulk_bands");
+  BlochEvaluator ev(cg, true);
+  std::string why;
+  const std::unique_ptr<BlochExact> exact = exact_analysis(cg, why);
+  GslHandlerOff guard;
+  Bands b;
+  b.exact = exact != nullptr;
+  b.note = why;
+  std::vector<std::pair<double, double>> at_end[2];  // certified exponents at k = 0 and pi
+  for (double k : ks) {
+    if (!(k >= 0.0 && k <= kPi)) throw std::invalid_argument("bulk_bands: momentum outside [0, pi]");
+    KExponents r = ev.at(k);
+    bool kink = false;
+    if (exact) {
+      double v[4], rad[4];
+      bool cert = false;
+      if (k == 0.0 || k == kPi) {
+        // Real blocks whose eigenvalues may collide: the certified exponents of
+        // the integer polynomials det(x - M(+-1)), exact zeros included.
+        auto& e = at_end[k == 0.0 ? 0 : 1];
+        if (e.empty()) e = exact->orbit_exponents(k == 0.0 ? 1 : 2);
+        if (e.size() == 4) {
+          for (int j = 0; j < 4; ++j) std::tie(v[j], rad[j]) = e[static_cast<std::size_t>(j)];
+          cert = true;
+        }
+        const auto& ord = exact->kink_orders();
+        kink = std::find(ord.begin(), ord.end(), k == 0.0 ? 1 : 2) != ord.end();
+      } else {
+        for (double q : exact->kinks()) kink = kink || std::abs(k - q) <= 1e-12;
+        if (!(r.err <= kRecomputeAbove)) cert = exact->certified_exponents_at(k, v, rad);
+      }
+      if (cert) {
+        for (int j = 0; j < 4; ++j) {
+          r.lam[j] = v[j];
+          r.err4[j] = rad[j];
+        }
+        r.sort_desc();
+      }
+      if (!(k == 0.0 || k == kPi)) {
+        // Between kinks the number of unit-circle eigenvalues is exact: those
+        // exponents are exactly zero (at a kink, the count of the arc on its
+        // left, bloch_exact.hpp).
+        const int on = exact->on_circle_near(k);
+        for (int j = (4 - on) / 2; j < (4 + on) / 2; ++j) r.lam[j] = r.err4[j] = 0.0;
+        if (kink) r.lam[1] = r.lam[2] = r.err4[1] = r.err4[2] = 0.0;  // a pair collides on the circle
+      }
+    }
+    b.k.push_back(k);
+    for (int j = 0; j < 4; ++j) {
+      b.exponents.push_back(r.lam[j]);
+      b.errors.push_back(r.err4[j]);
+    }
+    const bool all_zero = exact ? r.lam[0] == 0.0 : std::abs(r.lam[0]) <= r.err4[0];
+    b.classes.push_back(static_cast<int>(!all_zero ? BlockClass::Hyperbolic
+                                         : kink    ? BlockClass::Parabolic
+                                                   : BlockClass::Elliptic));
+  }
+  return b;
+}
+
+BandArcs band_arcs(const Circuit& c) {
+  const CellGates cg = extract_gates(c, "band_arcs");
+  std::string why;
+  const std::unique_ptr<BlochExact> exact = exact_analysis(cg, why);
+  if (!exact) throw std::runtime_error("band_arcs: the exact analysis failed: " + why);
+  BandArcs a;
+  for (const BlochArc& arc : exact->arcs()) {
+    a.lo.push_back(arc.k_lo);
+    a.hi.push_back(arc.k_hi);
+    a.on_circle.push_back(arc.on_circle);
+    a.classes.push_back(static_cast<int>(arc.on_circle >= 4 ? BlockClass::Elliptic : BlockClass::Hyperbolic));
+  }
+  const auto& ord = exact->kink_orders();
+  if (std::find(ord.begin(), ord.end(), 1) != ord.end()) a.kinks.push_back(0.0);
+  for (double q : exact->kinks()) a.kinks.push_back(q);
+  if (std::find(ord.begin(), ord.end(), 2) != ord.end()) a.kinks.push_back(kPi);
+  return a;
 }
 
 // Bulk limit. Per-site quantities of a translation-invariant circuit for

@@ -9,6 +9,7 @@
 // k_m = 2 pi m / (L/2), m = 0 .. L/2 - 1.
 #pragma once
 #include <complex>
+#include <string>
 #include <vector>
 
 #include "spectrum.hpp"
@@ -45,5 +46,47 @@ struct BulkLimit {
   bool zero_certified = false;      // the elliptic arcs (exact zeros) come from bloch_exact.hpp
 };
 BulkLimit bulk_limit(const Circuit& c, int bins, double tol = 1e-10);
+
+// ---- bands: the exponents of each block as functions of the momentum
+
+// Class of the block M(z) at one momentum, from its eigenvalue moduli:
+// elliptic = every eigenvalue on the unit circle (all four exponents zero),
+// parabolic = every eigenvalue on the circle with a collision (a kink: a pair
+// about to leave the circle; exponents zero), hyperbolic = some eigenvalue
+// off the circle (a positive exponent).
+enum class BlockClass : int { Elliptic = 0, Parabolic = 1, Hyperbolic = 2 };
+
+struct Bands {
+  std::vector<double> k;          // the momenta
+  std::vector<double> exponents;  // 4 per momentum, descending (+- paired)
+  std::vector<double> errors;     // 4 per momentum: estimated absolute error (0 for an exact zero)
+  std::vector<int> classes;       // BlockClass per momentum
+  bool exact = false;             // zeros and classes decided by bloch_exact (else by the error estimate)
+  std::string note;               // why the exact analysis failed, or a warning ("" when none)
+};
+
+// The bands of a finite ring: its L/2 momenta k_m = 2 pi m / (L/2), m = 0 ..
+// L/2 - 1, each with the four exponents bloch_spectrum takes from it (same
+// values, same exact zeros: their union is bloch_spectrum's spectrum).
+Bands ring_bands(const Circuit& c);
+
+// The bands of the bulk (L -> infinity) at momenta k in [0, pi] (the
+// exponents at -k are the same): exact zeros from the arcs' unit-circle
+// counts, certified exponents where double precision is poor and at k = 0,
+// pi. Depends on the gates only (any boundary, any L).
+Bands bulk_bands(const Circuit& c, const std::vector<double>& k);
+
+// The momentum ranges of each class on [0, pi]: the arcs between kinks
+// (elliptic where all four eigenvalues are on the circle, else hyperbolic)
+// and the kinks themselves (the parabolic points, including 0 and pi when a
+// root-of-unity kink sits there). Throws std::runtime_error when the exact
+// analysis fails.
+struct BandArcs {
+  std::vector<double> lo, hi;     // arc (lo, hi), ascending, covering [0, pi]
+  std::vector<int> on_circle;     // unit-circle eigenvalues on the arc (0, 2 or 4)
+  std::vector<int> classes;       // BlockClass of the arc
+  std::vector<double> kinks;      // parabolic points, ascending
+};
+BandArcs band_arcs(const Circuit& c);
 
 }  // namespace toral

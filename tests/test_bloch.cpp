@@ -594,3 +594,133 @@ TEST(BlochSpectrum, MillionSitesAgreesWithBulk) {
 
 }  // namespace
 }  // namespace toral
+
+// ---------------------------------------------------------------- bands
+
+namespace toral {
+namespace {
+
+// The four exponents of momentum index m of a Bands result.
+std::vector<double> band_at(const Bands& b, std::size_t m) {
+  return {b.exponents.begin() + static_cast<std::ptrdiff_t>(4 * m),
+          b.exponents.begin() + static_cast<std::ptrdiff_t>(4 * m + 4)};
+}
+
+// The ring's bands, flattened, are its spectrum: as a multiset they equal an
+// independent dense LAPACK diagonalisation of the assembled S (within the
+// two error estimates), for position-class and general 4x4 blocks, with and
+// without exact zeros. Each momentum's four exponents are +- paired and its
+// class says whether one is positive.
+TEST(Bands, RingBandsAreTheDenseSpectrumAsAMultiset) {
+  std::vector<Spec> specs = position_specs();
+  for (const Spec& s : general_specs()) specs.push_back(s);
+  int classes[3] = {0, 0, 0};
+  for (const Spec& sp : specs)
+    for (std::int64_t L : {4, 8, 12}) {
+      const Circuit c = ring(sp, L);
+      const Bands b = ring_bands(c);
+      const std::size_t n = static_cast<std::size_t>(L / 2);
+      ASSERT_EQ(b.k.size(), n) << sp.name;
+      ASSERT_EQ(b.exponents.size(), 4 * n);
+      ASSERT_EQ(b.errors.size(), 4 * n);
+      ASSERT_EQ(b.classes.size(), n);
+      EXPECT_TRUE(b.exact) << sp.name << ": " << b.note;
+      std::vector<std::pair<double, double>> all;
+      for (std::size_t m = 0; m < n; ++m) {
+        EXPECT_NEAR(b.k[m], 2 * kPi * static_cast<double>(m) / static_cast<double>(n), 1e-15);
+        const std::vector<double> e = band_at(b, m);
+        EXPECT_TRUE(is_descending(e)) << sp.name;
+        for (int j = 0; j < 4; ++j) {
+          all.emplace_back(e[static_cast<std::size_t>(j)], b.errors[4 * m + static_cast<std::size_t>(j)]);
+          EXPECT_NEAR(e[static_cast<std::size_t>(j)], -e[static_cast<std::size_t>(3 - j)], 1e-9 + 2 * b.errors[4 * m]);
+        }
+        const int cls = b.classes[m];
+        ASSERT_GE(cls, 0);
+        ASSERT_LE(cls, 2);
+        ++classes[cls];
+        EXPECT_EQ(cls == static_cast<int>(BlockClass::Hyperbolic), e[0] > 0.0) << sp.name << " L=" << L << " m=" << m;
+        if (cls != static_cast<int>(BlockClass::Hyperbolic)) EXPECT_EQ(e[0], 0.0);  // exact zeros
+      }
+      std::sort(all.begin(), all.end(), [](const auto& x, const auto& y) { return x.first > y.first; });
+      const auto d = dense_reference_with_errors(c);
+      ASSERT_EQ(d.size(), all.size());
+      for (std::size_t i = 0; i < all.size(); ++i)
+        EXPECT_NEAR(all[i].first, d[i].first, 1e-9 + all[i].second + d[i].second) << sp.name << " L=" << L << " i=" << i;
+      // the same values as bloch_spectrum (one computation behind both)
+      const Spectrum s = bloch_spectrum(c);
+      for (std::size_t i = 0; i < all.size(); ++i) EXPECT_EQ(all[i].first, s.exponents[i]) << sp.name;
+    }
+  // every class occurs in the set
+  EXPECT_GT(classes[0], 0);
+  EXPECT_GT(classes[1], 0);
+  EXPECT_GT(classes[2], 0);
+}
+
+// The bulk bands at the ring's momenta in [0, pi] are the ring's bands there
+// (the blocks depend on the gates and k only), class included.
+TEST(Bands, BulkBandsAtRingMomentaAreTheRingBands) {
+  std::vector<Spec> specs = position_specs();
+  for (const Spec& s : general_specs()) specs.push_back(s);
+  for (const Spec& sp : specs) {
+    const std::int64_t L = 12;
+    const Bands r = ring_bands(ring(sp, L));
+    std::vector<double> ks;
+    for (std::size_t m = 0; m <= 3; ++m) ks.push_back(r.k[m]);  // 0, pi/3, 2pi/3, pi of 6 cells
+    ks.back() = kPi;
+    const Bands b = bulk_bands(ring(sp, 2, Boundary::Open), ks);  // any boundary, any L
+    ASSERT_EQ(b.k.size(), ks.size());
+    for (std::size_t m = 0; m < ks.size(); ++m) {
+      const std::vector<double> x = band_at(b, m), y = band_at(r, m);
+      for (std::size_t j = 0; j < 4; ++j)
+        EXPECT_NEAR(x[j], y[j], 1e-9 + b.errors[4 * m + j] + r.errors[4 * m + j]) << sp.name << " m=" << m;
+      EXPECT_EQ(b.classes[m], r.classes[m]) << sp.name << " m=" << m;
+    }
+  }
+}
+
+// Worked example: the position gate A = [[1, 2], [-2, -3]] (det 1). The trace
+// of its 2x2 block is tau(k) = 2 A00 A11 + A10^2 e^{-ik} + A01^2 e^{ik}
+// = -6 + 8 cos k (derived at the top of kernels/bloch.cpp and checked against
+// the assembled period by BlochMatrix.PlaneWaveActionMatchesAssembledPeriod),
+// so |tau| <= 2 (elliptic, exponents 0) exactly for cos k >= 1/2, i.e. on
+// [0, pi/3], with kinks (tau = +-2, colliding eigenvalues) at k = 0 and
+// pi/3; beyond, the exponents are +-arccosh(|tau|/2), twice each. At k = pi:
+// arccosh(7) = ln(7 + sqrt 48), which a dense diagonalisation of the L = 4
+// ring (momenta 0 and pi) must also contain.
+TEST(Bands, ClosedFormEllipticThenHyperbolic) {
+  const Spec sp = pos("A", m2(1, 2, -2, -3));
+  std::vector<double> ks;
+  for (int i = 0; i <= 60; ++i) ks.push_back(kPi * i / 60.0);
+  ks.push_back(kPi / 3.0);
+  const Bands b = bulk_bands(ring(sp, 2), ks);
+  ASSERT_TRUE(b.exact) << b.note;
+  for (std::size_t m = 0; m < ks.size(); ++m) {
+    const double tau = -6.0 + 8.0 * std::cos(ks[m]);
+    const double lam = std::abs(tau) > 2.0 ? std::acosh(std::abs(tau) / 2.0) : 0.0;
+    const std::vector<double> e = band_at(b, m);
+    EXPECT_NEAR(e[0], lam, 1e-12) << ks[m];
+    EXPECT_NEAR(e[1], lam, 1e-12) << ks[m];
+    EXPECT_NEAR(e[3], -lam, 1e-12) << ks[m];
+    const bool kink = ks[m] == 0.0 || std::abs(ks[m] - kPi / 3.0) < 1e-14;
+    const int want = kink ? 1 : ks[m] < kPi / 3.0 ? 0 : 2;
+    EXPECT_EQ(b.classes[m], want) << ks[m];
+    if (want != 2) EXPECT_EQ(e[0], 0.0) << ks[m];  // exactly zero, not within a tolerance
+  }
+  const BandArcs a = band_arcs(ring(sp, 2));
+  ASSERT_EQ(a.lo.size(), 2u);
+  EXPECT_EQ(a.lo[0], 0.0);
+  EXPECT_NEAR(a.hi[0], kPi / 3.0, 1e-14);
+  EXPECT_NEAR(a.lo[1], kPi / 3.0, 1e-14);
+  EXPECT_EQ(a.hi[1], kPi);
+  EXPECT_EQ(a.on_circle, (std::vector<int>{4, 0}));
+  EXPECT_EQ(a.classes, (std::vector<int>{0, 2}));
+  ASSERT_EQ(a.kinks.size(), 2u);
+  EXPECT_EQ(a.kinks[0], 0.0);
+  EXPECT_NEAR(a.kinks[1], kPi / 3.0, 1e-14);
+  const auto d = dense_reference_with_errors(ring(sp, 4));
+  EXPECT_NEAR(d.front().first, std::log(7.0 + std::sqrt(48.0)), 1e-10);
+  EXPECT_NEAR(band_at(b, 60)[0], std::log(7.0 + std::sqrt(48.0)), 1e-12);
+}
+
+}  // namespace
+}  // namespace toral
