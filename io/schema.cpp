@@ -361,7 +361,9 @@ bool FieldValue::operator==(const FieldValue& o) const {
 
 std::string check_value(const Schema& s, std::size_t k, const FieldValue& v) {
   const FieldDecl& fd = s.fields.at(k);
-  if (v.empty()) return v.shape.empty() ? std::string() : fd.path + ": a shape without values";
+  // No values: not computed (no shape), or a value with a zero extent (a
+  // ragged dim of length 0, e.g. no kinks), which is all padding in the file.
+  if (v.empty() && (v.shape.empty() || product(v.shape) != 0)) return v.shape.empty() ? std::string() : fd.path + ": a shape without values";
   if ((fd.type == Elem::F64 && !v.i.empty()) || (fd.type == Elem::I64 && !v.f.empty()))
     return fd.path + ": values of the wrong element type";
   const std::vector<std::int64_t> full = s.inner_shape(k);

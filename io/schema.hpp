@@ -106,7 +106,9 @@ struct Schema {
 // One point's value of one field: `shape` has one extent per dim of the
 // field (each at most the axis length, equal to it where the dim is not
 // ragged), the data are row-major over `shape`. Empty data: not computed
-// (the whole row is padding in the file).
+// (the whole row is padding in the file); a value with a zero extent (a
+// ragged dim of length 0) also has no data and is all padding in the file,
+// so it reads back as not computed.
 struct FieldValue {
   std::vector<std::int64_t> shape;
   std::vector<double> f;

@@ -853,6 +853,116 @@ void make_plain_file(const std::string& p, const std::string& content) {
 
 // ---------------------------------------------------------------- h5 layer
 
+// ---------------------------------------------------------------- schema (io/schema.hpp)
+
+TEST(Schema, TextRoundTripAndHash) {
+  Schema s = make_schema();
+  s.fields[0].attrs.push_back(AttrDecl::of("note", std::string("tab\there, newline\nthere, back\\slash")));
+  s.fields[0].attrs.push_back(AttrDecl::of("x", 0.1));
+  s.coords.push_back(tcoord("/entanglement/empty_name_units", {"/entanglement/empty_name_units"}, {}));
+  s.coords.back().units = "";
+  const std::string t = s.text();
+  const Schema back = Schema::parse(t);
+  EXPECT_TRUE(back == s);
+  EXPECT_EQ(back.text(), t);
+  // the hash is FNV-1a-64 of the text (io/common.hpp), 16 hex digits
+  EXPECT_EQ(s.hash(), config_hash_of(t));
+  EXPECT_EQ(s.hash().size(), 16u);
+  EXPECT_EQ(Schema{}.hash(), "");
+  Schema other = make_schema();
+  other.fields[1].units = "something else";
+  EXPECT_NE(other.hash(), make_schema().hash());
+  for (const std::string& bad : std::vector<std::string>{"nonsense\n", t.substr(0, t.size() - 1), "toral-schema\t2\n",
+                                t + "coord\t/x\t7\n"}) {
+    EXPECT_THROW(Schema::parse(bad), std::runtime_error) << bad;
+  }
+}
+
+TEST(Schema, ValidateSaysWhatIsWrong) {
+  EXPECT_EQ(make_schema().validate(), "");
+  auto err = [](const Schema& s) { return s.validate(); };
+  {
+    Schema s = make_schema();
+    s.fields.push_back(s.fields[0]);
+    EXPECT_NE(err(s).find("declared twice"), std::string::npos) << err(s);
+  }
+  {
+    Schema s = make_schema();
+    s.fields[1].dims = {"/entanglement/nowhere"};
+    EXPECT_NE(err(s).find("not declared before it"), std::string::npos) << err(s);
+  }
+  {
+    // an axis in a sibling group is invisible to netCDF readers
+    Schema s = make_schema();
+    s.fields[1].dims = {kNp};  // /entanglement/stabilizer/local_dim used from /entanglement
+    EXPECT_NE(err(s).find("not in its group or an ancestor"), std::string::npos) << err(s);
+  }
+  {
+    Schema s = make_schema();
+    s.fields[1].ragged = {true, false};
+    EXPECT_NE(err(s).find("ragged flags"), std::string::npos) << err(s);
+  }
+  {
+    Schema s = make_schema();
+    s.fields[1].stats = "cuts";  // an int64 field
+    EXPECT_NE(err(s).find("not float64"), std::string::npos) << err(s);
+  }
+  {
+    Schema s = make_schema();
+    s.coords[3].i.pop_back();  // region_sites: 5 values for 2 x 3
+    EXPECT_NE(err(s).find("holds 5 values for 6"), std::string::npos) << err(s);
+  }
+  {
+    Schema s = make_schema();
+    s.fields[0].path = "/elsewhere/x";
+    EXPECT_NE(err(s).find("not in a declared group"), std::string::npos) << err(s);
+  }
+}
+
+TEST(Schema, PaddingAndRaggedDims) {
+  const Schema s = make_schema();
+  const std::size_t prof = static_cast<std::size_t>(s.field_index("/entanglement/stabilizer/profile"));
+  ASSERT_EQ(s.inner_shape(prof), (std::vector<std::int64_t>{2, 2, 9}));
+  FieldValue v;
+  v.shape = {2, 2, 5};  // a point of L = 4: x = 0..4
+  for (int i = 0; i < 20; ++i) v.f.push_back(i);
+  EXPECT_EQ(check_value(s, prof, v), "");
+  std::vector<double> f;
+  std::vector<std::int64_t> i;
+  pad_value(s, prof, v, f, i);
+  ASSERT_EQ(f.size(), 36u);
+  EXPECT_EQ(f[9], 5.0);  // row (0, 1) starts at 9
+  EXPECT_EQ(f[4], 4.0);
+  EXPECT_TRUE(std::isnan(f[5]) && std::isnan(f[8]));
+  EXPECT_TRUE(unpad_row(s, prof, f.data(), nullptr) == v);
+  // a value with a zero extent is accepted and is all padding
+  FieldValue z;
+  z.shape = {2, 2, 0};
+  EXPECT_EQ(check_value(s, prof, z), "");
+  pad_value(s, prof, z, f, i);
+  EXPECT_TRUE(std::all_of(f.begin(), f.end(), [](double x) { return std::isnan(x); }));
+  EXPECT_TRUE(unpad_row(s, prof, f.data(), nullptr).empty());
+  // a non-ragged dim must be full; data must fill the shape
+  FieldValue bad = v;
+  bad.shape = {1, 2, 5};
+  bad.f.resize(10);
+  EXPECT_NE(check_value(s, prof, bad).find("extent 1 of dim " + kNp), std::string::npos);
+  bad = v;
+  bad.f.pop_back();
+  EXPECT_NE(check_value(s, prof, bad).find("19 values for shape of 20"), std::string::npos);
+  FieldValue shape_only;
+  shape_only.shape = {2, 2, 3};
+  EXPECT_NE(check_value(s, prof, shape_only).find("a shape without values"), std::string::npos);
+  // int64 padding is -1
+  const std::size_t cuts = static_cast<std::size_t>(s.field_index("/entanglement/cuts"));
+  FieldValue c;
+  c.shape = {2};
+  c.i = {3, -1};
+  pad_value(s, cuts, c, f, i);
+  EXPECT_EQ(i, (std::vector<std::int64_t>{3, -1}));
+  EXPECT_TRUE(unpad_row(s, cuts, nullptr, i.data()) == c);
+}
+
 TEST(H5Layer, TruncateUtf8) {
   EXPECT_EQ(h5::truncate_utf8("abc", 5), "abc");
   EXPECT_EQ(h5::truncate_utf8("abcdef", 3), "abc");
