@@ -8,9 +8,12 @@
 
 namespace toral {
 
+const Diagnostic& bands_diagnostic();  // driver/bands.cpp
+
 const std::vector<const Diagnostic*>& diagnostics() {
   static const std::vector<const Diagnostic*> registry = {
       &entanglement_diagnostic(),  // [entanglement] -> /entanglement (driver/entangle.cpp)
+      &bands_diagnostic(),         // [bands] -> /bands (driver/bands.cpp)
   };
   return registry;
 }

@@ -18,7 +18,8 @@ pytest.importorskip("h5netcdf")
 # A clean scan (the docs' scenario, sites x boundary x a x b = 24 points) and a
 # small seed ensemble (so /stats is written); an [entanglement] table with
 # Gaussian and stabilizer curves, the profile, and a region given as a site
-# list. About a second on one rank.
+# list; a [bands] table (bands of the translation-invariant points, padding
+# for the drawn ensemble). About a second on one rank.
 CONFIG = """
 title = "xarray test"
 [[sweep]]
@@ -51,6 +52,9 @@ gaussian = true
 stabilizer_dims = [2, 3]
 profile = true
 profile_stride = 2
+
+[bands]
+grid = 9
 """
 NPOINTS = 2 * 2 * 2 * 3 + 3
 
@@ -59,7 +63,7 @@ EXPECTED_GROUPS = {
     "/", "/points", "/chaos", "/chaos/accuracy", "/chaos/histogram", "/chaos/solver",
     "/limit", "/limit/histogram", "/bounds", "/entanglement", "/entanglement/gaussian",
     "/entanglement/stabilizer", "/stats", "/stats/lambda_max", "/stats/hilbert_cap",
-    "/stats/stabilizer_slope",
+    "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction",
 }
 TIMING = {"/points/wall_time", "/chaos/solver/wall_time", "/entanglement/wall_time"}
 
