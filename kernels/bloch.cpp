@@ -25,6 +25,7 @@
 // general case M(z) is 4x4 and gives the 4 exponents directly. The gates are
 // real, so M(conj z) = conj(M(z)) and the exponents at k and -k coincide.
 #include "bloch.hpp"
+#include "errors.hpp"
 
 #include "bloch_exact.hpp"
 
@@ -180,7 +181,7 @@ class SmallEig {
                             w_.data(), vl_.data(), n_, vr_.data(), n_, &ilo, &ihi, scale_.data(),
                             &abnrm, rconde_.data(), rcondv_.data(), &wq, -1, rwork_.data());
     if (info != 0)
-      throw std::runtime_error("zgeevx workspace query failed, info = " + std::to_string(info));
+      throw SolverError("zgeevx workspace query failed, info = " + std::to_string(info));
     work_.resize(static_cast<std::size_t>(std::max(1.0, wq.real())) + 2 * n);
     if (cond_) {
       cd sq[16];
@@ -189,7 +190,7 @@ class SmallEig {
       const lapack_int i2 = LAPACKE_zgesvd_work(LAPACK_COL_MAJOR, 'N', 'N', n_, n_, sq, n_, sv,
                                                 nullptr, 1, nullptr, 1, &wq, -1, svd_rwork_.data());
       if (i2 != 0)
-        throw std::runtime_error("zgesvd workspace query failed, info = " + std::to_string(i2));
+        throw SolverError("zgesvd workspace query failed, info = " + std::to_string(i2));
       svd_work_.resize(static_cast<std::size_t>(std::max(1.0, wq.real())) + 2 * n);
     }
   }
@@ -207,7 +208,7 @@ class SmallEig {
         vr_.data(), n_, &ilo, &ihi, scale_.data(), &abnrm, rconde_.data(), rcondv_.data(),
         work_.data(), static_cast<lapack_int>(work_.size()), rwork_.data());
     if (info != 0)
-      throw std::runtime_error("zgeevx failed on a " + std::to_string(n_) + "x" +
+      throw SolverError("zgeevx failed on a " + std::to_string(n_) + "x" +
                                std::to_string(n_) +
                                " Bloch matrix, info = " + std::to_string(info));
     for (int j = 0; j < n_; ++j) lam[j] = std::log(std::abs(w_[j]));
@@ -730,7 +731,7 @@ Bands bulk_bands(const Circuit& c, const std::vector<double>& ks) {
   b.note = why;
   std::vector<std::pair<double, double>> at_end[2];  // certified exponents at k = 0 and pi
   for (double k : ks) {
-    if (!(k >= 0.0 && k <= kPi)) throw std::invalid_argument("bulk_bands: momentum outside [0, pi]");
+    if (!(k >= 0.0 && k <= kPi)) throw InvalidInput("bulk_bands: momentum outside [0, pi]");
     KExponents r = ev.at(k);
     bool kink = false;
     if (exact) {
@@ -784,7 +785,7 @@ BandArcs band_arcs(const Circuit& c) {
   const CellGates cg = extract_gates(c, "band_arcs");
   std::string why;
   const std::unique_ptr<BlochExact> exact = exact_analysis(cg, why);
-  if (!exact) throw std::runtime_error("band_arcs: the exact analysis failed: " + why);
+  if (!exact) throw SolverError("band_arcs: the exact analysis failed: " + why);
   BandArcs a;
   for (const BlochArc& arc : exact->arcs()) {
     a.lo.push_back(arc.k_lo);
@@ -805,8 +806,8 @@ BandArcs band_arcs(const Circuit& c) {
 // accepted; the circuit only supplies its bond and site gates.
 BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
   if (bins < 1)
-    throw std::invalid_argument("bulk_limit: bins = " + std::to_string(bins) + ", needs >= 1");
-  if (!(tol > 0.0)) throw std::invalid_argument("bulk_limit: tol must be positive");
+    throw InvalidInput("bulk_limit: bins = " + std::to_string(bins) + ", needs >= 1");
+  if (!(tol > 0.0)) throw InvalidInput("bulk_limit: tol must be positive");
   const CellGates cg = extract_gates(c, "bulk_limit");
   BlochEvaluator ev_raw(cg, false);
   BlochEvaluator ev_cond(cg, true);
@@ -896,7 +897,7 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
     gsl_function F = cb.fn();
     std::unique_ptr<gsl_min_fminimizer, decltype(&gsl_min_fminimizer_free)> mz(
         gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent), &gsl_min_fminimizer_free);
-    if (!mz) throw std::runtime_error("bulk_limit: gsl_min_fminimizer_alloc failed");
+    if (!mz) throw SolverError("bulk_limit: gsl_min_fminimizer_alloc failed");
     double best_err = 0.0;
     for (int i : cand) {
       const double km = hs * i, kl = km - hs, ku = km + hs;
@@ -941,7 +942,7 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
     const std::size_t limit = 2000;
     std::unique_ptr<gsl_integration_workspace, decltype(&gsl_integration_workspace_free)> ws(
         gsl_integration_workspace_alloc(limit), &gsl_integration_workspace_free);
-    if (!ws) throw std::runtime_error("bulk_limit: gsl_integration_workspace_alloc failed");
+    if (!ws) throw SolverError("bulk_limit: gsl_integration_workspace_alloc failed");
     double total = 0.0, total_err = 0.0;
     for (const auto& [ka, kb] : pieces) {
       double result = 0.0, abserr = 0.0;
@@ -949,7 +950,7 @@ BulkLimit bulk_limit(const Circuit& c, int bins, double tol) {
           gsl_integration_qags(&F, ka, kb, tol * (kb - ka), 0.0, limit, ws.get(), &result, &abserr);
       cb.rethrow();
       if (!std::isfinite(result))
-        throw std::runtime_error(std::string("bulk_limit: KS integral failed: ") + gsl_strerror(status));
+        throw SolverError(std::string("bulk_limit: KS integral failed: ") + gsl_strerror(status));
       // On GSL_EROUND / GSL_EMAXITER etc. the best estimate is kept and its
       // error estimate reported through `accuracy`.
       total += result;

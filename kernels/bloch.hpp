@@ -79,7 +79,7 @@ Bands bulk_bands(const Circuit& c, const std::vector<double>& k);
 // The momentum ranges of each class on [0, pi]: the arcs between kinks
 // (elliptic where all four eigenvalues are on the circle, else hyperbolic)
 // and the kinks themselves (the parabolic points, including 0 and pi when a
-// root-of-unity kink sits there). Throws std::runtime_error when the exact
+// root-of-unity kink sits there). Throws SolverError (kernels/errors.hpp) when the exact
 // analysis fails.
 struct BandArcs {
   std::vector<double> lo, hi;     // arc (lo, hi), ascending, covering [0, pi]

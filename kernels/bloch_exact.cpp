@@ -1,4 +1,5 @@
 #include "bloch_exact.hpp"
+#include "errors.hpp"
 
 #include <arb_fmpz_poly.h>
 #include <flint/fmpz_poly_factor.h>
@@ -261,7 +262,7 @@ void BlochExact::Impl::build(const Mat4& G, const Mat2* site) {
   // Squarefree factorisation; the radical's discriminant locates the kinks.
   flint::MPolyFactors fac(ctx);
   if (!fmpz_mpoly_factor_squarefree(fac.get(), F->get(), c))
-    throw std::runtime_error("BlochExact: squarefree factorisation failed");
+    throw SolverError("BlochExact: squarefree factorisation failed");
   MPoly radical(ctx);
   fmpz_mpoly_one(radical.get(), c);
   for (slong i = 0; i < fac.get()->num; ++i) {
@@ -275,11 +276,11 @@ void BlochExact::Impl::build(const Mat4& G, const Mat2* site) {
   MPoly disc(ctx);
   if (fmpz_mpoly_degree_si(radical.get(), kLambda, c) >= 2) {
     if (!fmpz_mpoly_discriminant(disc.get(), radical.get(), kLambda, c))
-      throw std::runtime_error("BlochExact: discriminant failed");
+      throw SolverError("BlochExact: discriminant failed");
   } else {
     fmpz_mpoly_one(disc.get(), c);  // one simple root: no collisions
   }
-  if (fmpz_mpoly_is_zero(disc.get(), c)) throw std::runtime_error("BlochExact: vanishing discriminant");
+  if (fmpz_mpoly_is_zero(disc.get(), c)) throw SolverError("BlochExact: vanishing discriminant");
   Poly D;
   if (!fmpz_mpoly_get_fmpz_poly(D.get(), disc.get(), kZ, c))
     throw std::logic_error("BlochExact: discriminant depends on lambda");
@@ -315,7 +316,7 @@ void BlochExact::Impl::find_kinks(const fmpz_poly_struct* D) {
         const slong d = fmpz_poly_degree(f);
         const std::int64_t expect = roots_between_minus2_and_2(f);  // Sturm
         for (slong prec = kStartPrec;; prec *= 2) {
-          if (prec > kMaxPrec) throw std::runtime_error("BlochExact: kinks not isolated within the precision limit");
+          if (prec > kMaxPrec) throw SolverError("BlochExact: kinks not isolated within the precision limit");
           CVec roots(d);
           arb_fmpz_poly_complex_roots(roots.get(), f, 0, prec);
           std::vector<std::pair<double, double>> found;
@@ -360,7 +361,7 @@ void BlochExact::Impl::find_kinks(const fmpz_poly_struct* D) {
     arc.k_lo = i == 0 ? 0.0 : kinks[i - 1];
     arc.k_hi = i + 1 == bounds.size() - 1 ? kPi : kinks[i];
     const double lo = bounds[i + 1] + brad[i + 1], hi = bounds[i] - brad[i];
-    if (!(lo < hi)) throw std::runtime_error("BlochExact: two kinks too close to separate");
+    if (!(lo < hi)) throw SolverError("BlochExact: two kinks too close to separate");
     arc.on_circle = count_at_trace(0.5 * (lo + hi));
     arcs.push_back(arc);
   }
@@ -379,7 +380,7 @@ int BlochExact::Impl::count_at_trace(double y) const {
       if (where[i] == 0) on += roots[i].mult;
     return static_cast<int>(on);
   }
-  throw std::runtime_error("BlochExact: eigenvalues at an arc point not isolated within the precision limit");
+  throw SolverError("BlochExact: eigenvalues at an arc point not isolated within the precision limit");
 }
 
 std::int64_t BlochExact::Impl::orbit_total(std::int64_t d) const {
@@ -399,7 +400,7 @@ void BlochExact::Impl::orbit_polynomial(fmpz_poly_struct* r, std::int64_t d) con
   MPoly Phi(ctx), R(ctx);
   fmpz_mpoly_set_fmpz_poly(Phi.get(), phi.get(), kZ, c);
   if (!fmpz_mpoly_resultant(R.get(), F->get(), Phi.get(), kZ, c))
-    throw std::runtime_error("BlochExact: resultant failed");
+    throw SolverError("BlochExact: resultant failed");
   if (!fmpz_mpoly_get_fmpz_poly(r, R.get(), kLambda, c))
     throw std::logic_error("BlochExact: resultant depends on z");
 }
@@ -432,7 +433,7 @@ int BlochExact::on_circle_near(double k) const {
 }
 
 RingZeros BlochExact::ring_zeros(std::int64_t n) const {
-  if (n < 1) throw std::invalid_argument("ring_zeros: needs at least one cell");
+  if (n < 1) throw InvalidInput("ring_zeros: needs at least one cell");
   RingZeros out;
   out.per_momentum.assign(static_cast<std::size_t>(n), 0);
   std::vector<std::int64_t> present;
@@ -461,7 +462,7 @@ RingZeros BlochExact::ring_zeros(std::int64_t n) const {
       // Too close for doubles: compare exactly-rounded enclosures.
       Ball yb, kb;
       for (slong prec = 128;; prec *= 2) {
-        if (prec > kMaxPrec) throw std::runtime_error("ring_zeros: a momentum too close to a kink to separate");
+        if (prec > kMaxPrec) throw SolverError("ring_zeros: a momentum too close to a kink to separate");
         fmpq_t q;
         fmpq_init(q);
         fmpq_set_si(q, 2 * m, static_cast<ulong>(n));
@@ -475,7 +476,7 @@ RingZeros BlochExact::ring_zeros(std::int64_t n) const {
           arc = i + 1;
           break;
         }
-        throw std::runtime_error("ring_zeros: kink enclosure too wide to place a momentum");
+        throw SolverError("ring_zeros: kink enclosure too wide to place a momentum");
       }
       if (arc != i + 1) break;
     }

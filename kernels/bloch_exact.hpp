@@ -58,7 +58,7 @@ struct RingZeros {
 class BlochExact {
  public:
   // G: the 4x4 bond gate on (q_a, p_a, q_b, p_b); site: the one-site gate,
-  // or nullptr without a one-site layer. Throws std::runtime_error when the
+  // or nullptr without a one-site layer. Throws SolverError (kernels/errors.hpp) when the
   // exact analysis cannot be completed (a root that cannot be isolated within
   // the precision limit, a vanishing discriminant).
   BlochExact(const Mat4& G, const Mat2* site);

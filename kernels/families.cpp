@@ -1,4 +1,5 @@
 #include "families.hpp"
+#include "errors.hpp"
 
 #include "fnv1a.hpp"
 
@@ -24,7 +25,7 @@ const Family* find_family(const std::string& name) {
 }
 
 Mat2 family_matrix(const std::string& name, const std::vector<std::int64_t>& v) {
-  if (v.size() != 2) throw std::invalid_argument("family " + name + " takes 2 parameters");
+  if (v.size() != 2) throw InvalidInput("family " + name + " takes 2 parameters");
   const std::int64_t a = v[0], b = v[1];
   Mat2 m;
   const std::int64_t ab1 = checked_add(checked_mul(a, b, "family parameters"), 1, "family parameters");
@@ -39,14 +40,14 @@ Mat2 family_matrix(const std::string& name, const std::vector<std::int64_t>& v) 
     m(1, 0) = ab1 - 2;
     m(1, 1) = b;
   } else {
-    throw std::invalid_argument("unknown family " + name);
+    throw InvalidInput("unknown family " + name);
   }
   return m;
 }
 
 std::int64_t draw_uniform(std::uint64_t seed, std::uint64_t point_key, std::uint64_t slot,
                           std::uint64_t index, std::uint64_t tag, std::int64_t lo, std::int64_t hi) {
-  if (hi < lo) throw std::invalid_argument("draw_uniform: empty range");
+  if (hi < lo) throw InvalidInput("draw_uniform: empty range");
   const std::uint64_t range = static_cast<std::uint64_t>(hi) - static_cast<std::uint64_t>(lo) + 1;
   using G = r123::Philox4x64;
   G gen;

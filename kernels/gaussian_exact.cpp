@@ -1,4 +1,5 @@
 #include "gaussian_exact.hpp"
+#include "errors.hpp"
 
 #include "flint_raii.hpp"
 #include "multimod.hpp"
@@ -68,13 +69,13 @@ void build_sigma0(Problem& pr, const std::vector<GaussianSite>& init) {
     const GaussianSite& g = init[static_cast<std::size_t>(i)];
     if (!g.squeezed) continue;
     if (g.den == 0)
-      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) +
+      throw InvalidInput("gaussian_entropy_curve: site " + std::to_string(i) +
                                   ": squeezing s = " + std::to_string(g.num) + "/0 has a zero denominator");
     if ((g.num > 0) != (g.den > 0) || g.num == 0)
-      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) + ": squeezing s = " +
+      throw InvalidInput("gaussian_entropy_curve: site " + std::to_string(i) + ": squeezing s = " +
                                   std::to_string(g.num) + "/" + std::to_string(g.den) + " must be > 0");
     if (g.num == INT64_MIN || g.den == INT64_MIN)
-      throw std::invalid_argument("gaussian_entropy_curve: site " + std::to_string(i) +
+      throw InvalidInput("gaussian_entropy_curve: site " + std::to_string(i) +
                                   ": squeezing numerator/denominator out of range");
     std::int64_t n = g.num < 0 ? -g.num : g.num, d = g.den < 0 ? -g.den : g.den;
     const std::int64_t gg = std::gcd(n, d);
@@ -942,14 +943,14 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
                                     const std::vector<std::int64_t>& region, std::int64_t T,
                                     const EntropyOptions& opt) {
   if (T < 0)
-    throw std::invalid_argument("gaussian_entropy_curve: T = " + std::to_string(T) + " must be >= 0");
+    throw InvalidInput("gaussian_entropy_curve: T = " + std::to_string(T) + " must be >= 0");
   if (!(opt.target_radius > 0.0))
-    throw std::invalid_argument("gaussian_entropy_curve: target_radius must be > 0");
+    throw InvalidInput("gaussian_entropy_curve: target_radius must be > 0");
   if (opt.max_prec_bits < 64)
-    throw std::invalid_argument("gaussian_entropy_curve: max_prec_bits must be >= 64");
-  if (c.L < 1) throw std::invalid_argument("gaussian_entropy_curve: circuit has L = " + std::to_string(c.L));
+    throw InvalidInput("gaussian_entropy_curve: max_prec_bits must be >= 64");
+  if (c.L < 1) throw InvalidInput("gaussian_entropy_curve: circuit has L = " + std::to_string(c.L));
   if (static_cast<std::int64_t>(init.size()) != c.L)
-    throw std::invalid_argument("gaussian_entropy_curve: " + std::to_string(init.size()) +
+    throw InvalidInput("gaussian_entropy_curve: " + std::to_string(init.size()) +
                                 " initial sites for L = " + std::to_string(c.L));
   Problem pr;
   pr.L = c.L;
@@ -958,10 +959,10 @@ EntropyCurve gaussian_entropy_curve(const Circuit& c, const std::vector<Gaussian
     std::vector<char> seen(static_cast<std::size_t>(c.L), 0);
     for (std::int64_t a : region) {
       if (a < 0 || a >= c.L)
-        throw std::invalid_argument("gaussian_entropy_curve: region site " + std::to_string(a) +
+        throw InvalidInput("gaussian_entropy_curve: region site " + std::to_string(a) +
                                     " is outside [0, " + std::to_string(c.L) + ")");
       if (seen[static_cast<std::size_t>(a)])
-        throw std::invalid_argument("gaussian_entropy_curve: region site " + std::to_string(a) +
+        throw InvalidInput("gaussian_entropy_curve: region site " + std::to_string(a) +
                                     " is repeated");
       seen[static_cast<std::size_t>(a)] = 1;
     }
@@ -1019,7 +1020,7 @@ double gaussian_work_bytes(const EntropyCurve& probe, std::int64_t t1, std::int6
   const auto n = probe.bits.size();
   if (!(t1 >= 0 && t1 < t2 && static_cast<std::size_t>(t2) < n && probe.columns.size() == n &&
         probe.entropy.size() == n && T >= t2))
-    throw std::invalid_argument("gaussian_work_bytes: need 0 <= t1 < t2 <= T within the probe curve");
+    throw InvalidInput("gaussian_work_bytes: need 0 <= t1 < t2 <= T within the probe curve");
   // Linear extrapolation from t1, t2 to T of the entry bits of R_t, its
   // light-cone columns (at most 2L) and S_A(t).
   const auto u1 = static_cast<std::size_t>(t1), u2 = static_cast<std::size_t>(t2);

@@ -107,7 +107,7 @@ struct EntropyCurve {
 
 // S_A(t) for t = 0..T. `init` has one entry per site (size c.L); `region` is a
 // list of distinct sites in [0, L) (any order; empty gives S = 0).
-// Throws std::invalid_argument for bad input (size mismatch, region out of
+// Throws InvalidInput (kernels/errors.hpp) for bad input (size mismatch, region out of
 // range or repeated, s <= 0, T < 0, bad options), ModelError for an invalid
 // circuit, OverflowError if S itself overflows int64 during assembly.
 // A t whose radius cannot be brought below target_radius within

@@ -1,4 +1,5 @@
 #include "intmat.hpp"
+#include "errors.hpp"
 
 #include <sstream>
 
@@ -6,7 +7,7 @@ namespace toral {
 
 Mat2 inverse_transpose(const Mat2& m) {
   const std::int64_t d = det2(m);
-  if (d != 1 && d != -1) throw std::invalid_argument("inverse_transpose needs det = +-1");
+  if (d != 1 && d != -1) throw InvalidInput("inverse_transpose needs det = +-1");
   // A^-1 = (1/d) [[m11, -m01], [-m10, m00]]; transpose it.
   Mat2 r;
   r(0, 0) = d * m(1, 1);

@@ -7,11 +7,11 @@
 #include <string>
 #include <vector>
 
+#include "errors.hpp"
+
 namespace toral {
 
-struct OverflowError : std::runtime_error {
-  using std::runtime_error::runtime_error;
-};
+// OverflowError: kernels/errors.hpp.
 
 inline std::int64_t checked_add(std::int64_t a, std::int64_t b, const char* what = "sum") {
   std::int64_t r;

@@ -36,9 +36,10 @@ struct BondGate {
   bool operator==(const BondGate& o) const { return kind == o.kind && G == o.G; }
 };
 
-// Thrown for an invalid gate or circuit; the message says which gate failed.
-struct ModelError : std::runtime_error {
-  using std::runtime_error::runtime_error;
+// Thrown for an invalid gate or circuit; the message says which gate failed
+// (an InvalidInput, kernels/errors.hpp).
+struct ModelError : InvalidInput {
+  using InvalidInput::InvalidInput;
 };
 
 // Exact checks; each throws ModelError naming `where` (e.g. "bond 3").

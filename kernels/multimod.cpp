@@ -1,4 +1,5 @@
 #include "multimod.hpp"
+#include "errors.hpp"
 
 #include <flint/fmpz_vec.h>
 #include <flint/ulong_extras.h>
@@ -45,7 +46,7 @@ struct Mod {
 
 void check_moduli(const Moduli& md) {
   if (md.np == 0 || md.np % kLanes != 0 || md.primes == nullptr)
-    throw std::invalid_argument("multimod: np = " + std::to_string(md.np) + " must be a positive multiple of " +
+    throw InvalidInput("multimod: np = " + std::to_string(md.np) + " must be a positive multiple of " +
                                 std::to_string(kLanes));
 }
 
@@ -53,7 +54,7 @@ void set_mod(Mod& m, const std::uint64_t* primes) {
   for (int l = 0; l < W; ++l) {
     const std::uint64_t p = primes[l];
     if (p <= kPrimeMin || p >= kPrimeMax || p % 2 == 0)
-      throw std::invalid_argument("multimod: modulus " + std::to_string(p) +
+      throw InvalidInput("multimod: modulus " + std::to_string(p) +
                                   " is not an odd number in (2^27, 2^28)");
     std::uint32_t inv = static_cast<std::uint32_t>(p);  // correct mod 2^3 for odd p
     for (int it = 0; it < 4; ++it) inv *= 2u - static_cast<std::uint32_t>(p) * inv;  // 3 -> 48 bits
@@ -236,7 +237,7 @@ void reduce(const Moduli& md, std::size_t ip0, std::size_t ip1, const fmpz* cons
             std::uint32_t* out) {
   check_moduli(md);
   if (ip0 % kLanes != 0 || ip1 % kLanes != 0 || ip0 >= ip1 || ip1 > md.np)
-    throw std::invalid_argument("multimod::reduce: bad prime range");
+    throw InvalidInput("multimod::reduce: bad prime range");
   const slong nq = static_cast<slong>(ip1 - ip0);
   std::vector<mp_limb_t> ps(md.primes + ip0, md.primes + ip1), r(static_cast<std::size_t>(nq));
   fmpz_comb_t comb;
@@ -260,7 +261,7 @@ void combine(const Moduli& md, int rows, std::size_t in_cols, std::size_t out_co
   for (std::size_t o = 0; o < out_cols; ++o) {
     for (std::int64_t t = ptr[o]; t < ptr[o + 1]; ++t) {
       if (src[t] < 0 || static_cast<std::size_t>(src[t]) >= in_cols)
-        throw std::invalid_argument("multimod::combine: source column out of range");
+        throw InvalidInput("multimod::combine: source column out of range");
       nvals = std::max<std::int64_t>(nvals, coef[t] + 1);
     }
   }
@@ -296,7 +297,7 @@ void gram(const Moduli& md, int rows, std::size_t cols, const std::uint32_t* m, 
   if (widx)
     for (std::size_t c = 0; c < cols; ++c)
       if (widx[c] < 0 || static_cast<std::size_t>(widx[c]) >= nw)
-        throw std::invalid_argument("multimod::gram: weight index out of range");
+        throw InvalidInput("multimod::gram: weight index out of range");
   auto wr2 = lanes(nw);
   auto Mm = lanes(static_cast<std::size_t>(rows) * cols);
   Mod mo;
@@ -343,7 +344,7 @@ struct Berkowitz {
 
 void charpoly(const Moduli& md, int n, const std::uint32_t* a, std::uint32_t* out) {
   check_moduli(md);
-  if (n < 1) throw std::invalid_argument("multimod::charpoly: n must be >= 1");
+  if (n < 1) throw InvalidInput("multimod::charpoly: n must be >= 1");
   const std::size_t un = static_cast<std::size_t>(n);
   Berkowitz bk(n);
   Mod m;
@@ -357,7 +358,7 @@ void charpoly(const Moduli& md, int n, const std::uint32_t* a, std::uint32_t* ou
 void charpoly_of_product(const Moduli& md, int n, const std::uint32_t* z, const std::uint32_t* x,
                          std::uint32_t* out) {
   check_moduli(md);
-  if (n < 1) throw std::invalid_argument("multimod::charpoly_of_product: n must be >= 1");
+  if (n < 1) throw InvalidInput("multimod::charpoly_of_product: n must be >= 1");
   const std::size_t un = static_cast<std::size_t>(n);
   auto Zm = lanes(un * un), P = lanes(un * un);
   Berkowitz bk(n);

@@ -1,4 +1,5 @@
 #include "real_roots.hpp"
+#include "errors.hpp"
 
 #include <acb_poly.h>
 #include <arb.h>
@@ -590,7 +591,7 @@ PositiveRoots positive_roots(const fmpz_poly_struct* p, std::int64_t rel_bits, c
       disjoint = !arb_overlaps(found[j - 1].ball->get(), found[j].ball->get());
     if (!disjoint) {
       if (2 * bits > kMaxRootBits)
-        throw std::runtime_error("positive_roots: roots of different squarefree factors not separated within " +
+        throw SolverError("positive_roots: roots of different squarefree factors not separated within " +
                                  std::to_string(kMaxRootBits) + " bits");
       continue;
     }

@@ -34,15 +34,16 @@
 #include <utility>
 #include <vector>
 
+#include "errors.hpp"
 #include "flint_raii.hpp"
 
 namespace toral {
 
 // Invalid input to positive_roots / positive_root_count: the zero polynomial
 // (or no coefficients), or a requested accuracy outside [1, kMaxRootBits].
-class RealRootsError : public std::invalid_argument {
+class RealRootsError : public InvalidInput {
  public:
-  using std::invalid_argument::invalid_argument;
+  using InvalidInput::InvalidInput;
 };
 
 inline constexpr std::int64_t kMaxRootBits = std::int64_t{1} << 20;
@@ -77,7 +78,7 @@ struct PositiveRoots {
 // [1, kMaxRootBits]. The cost of the bisection grows with the number of
 // binary orders the roots span and with the bits that separate the closest
 // pair; polynomials whose roots are all real and positive take the
-// sign-proof route, which has neither cost. Throws std::runtime_error in the
+// sign-proof route, which has neither cost. Throws SolverError (kernels/errors.hpp) in the
 // (theoretically possible, never met) case that roots of two different
 // squarefree factors cannot be told apart within kMaxRootBits bits.
 PositiveRoots positive_roots(const fmpz_poly_struct* p, std::int64_t rel_bits, const RootOptions& opt = {});

@@ -1,4 +1,5 @@
 #include "region_rate.hpp"
+#include "errors.hpp"
 
 #include <arb.h>
 #include <arb_mat.h>
@@ -154,7 +155,7 @@ class Rows {
 }  // namespace
 
 std::size_t late_window_start(std::size_t n) {
-  if (n < 2) throw std::invalid_argument("late_window_start: a curve needs at least two points");
+  if (n < 2) throw InvalidInput("late_window_start: a curve needs at least two points");
   const std::size_t T = n - 1;
   return std::min((3 * T + 3) / 4, T - 1);  // ceil(3T/4), at least two points
 }
@@ -181,16 +182,16 @@ double late_slope(const double* y, std::size_t n) {
 
 RegionRate region_rate(const Circuit& c, const std::vector<std::int64_t>& region, std::int64_t T,
                        const RegionRateOptions& opt) {
-  if (T < 0) throw std::invalid_argument("region_rate: T = " + std::to_string(T) + " must be >= 0");
-  if (opt.from_t < 0) throw std::invalid_argument("region_rate: from_t must be >= 0");
-  if (c.L < 1) throw std::invalid_argument("region_rate: circuit has L = " + std::to_string(c.L));
+  if (T < 0) throw InvalidInput("region_rate: T = " + std::to_string(T) + " must be >= 0");
+  if (opt.from_t < 0) throw InvalidInput("region_rate: from_t must be >= 0");
+  if (c.L < 1) throw InvalidInput("region_rate: circuit has L = " + std::to_string(c.L));
   std::vector<char> in(static_cast<std::size_t>(c.L), 0);
   for (std::int64_t a : region) {
     if (a < 0 || a >= c.L)
-      throw std::invalid_argument("region_rate: region site " + std::to_string(a) + " is outside [0, " +
+      throw InvalidInput("region_rate: region site " + std::to_string(a) + " is outside [0, " +
                                   std::to_string(c.L) + ")");
     if (in[static_cast<std::size_t>(a)])
-      throw std::invalid_argument("region_rate: region site " + std::to_string(a) + " is repeated");
+      throw InvalidInput("region_rate: region site " + std::to_string(a) + " is repeated");
     in[static_cast<std::size_t>(a)] = 1;
   }
   const SparseInt S = assemble_period(c);  // validates the circuit (ModelError)
@@ -233,7 +234,7 @@ double region_rate_work_bytes(const RegionRate& probe, std::int64_t t1, std::int
                               std::size_t region_size, std::int64_t L) {
   const auto n = probe.bits.size();
   if (!(t1 >= 0 && t1 < t2 && static_cast<std::size_t>(t2) < n && probe.columns.size() == n && T >= t2))
-    throw std::invalid_argument("region_rate_work_bytes: need 0 <= t1 < t2 <= T within the probe curve");
+    throw InvalidInput("region_rate_work_bytes: need 0 <= t1 < t2 <= T within the probe curve");
   const auto u1 = static_cast<std::size_t>(t1), u2 = static_cast<std::size_t>(t2);
   auto at_T = [&](double a, double b) {
     return b + (b - a) * static_cast<double>(T - t2) / static_cast<double>(t2 - t1);

@@ -90,7 +90,7 @@ struct RegionRate {
 
 // The log-volume curve and rate of region `region` (distinct sites in
 // [0, L), any order) under the time-periodic circuit c, t = 0..T. NaN curve
-// and rate for an empty region or |A| = L. Throws std::invalid_argument for
+// and rate for an empty region or |A| = L. Throws InvalidInput (kernels/errors.hpp) for
 // bad input (T < 0, a site out of range or repeated, from_t < 0), ModelError
 // for an invalid circuit, OverflowError if S itself overflows int64.
 RegionRate region_rate(const Circuit& c, const std::vector<std::int64_t>& region, std::int64_t T,

@@ -1,4 +1,5 @@
 #include "spectrum.hpp"
+#include "errors.hpp"
 
 #include <lapacke.h>
 
@@ -121,7 +122,7 @@ void apply_exact_zeros(Spectrum& s, std::int64_t zeros) {
 ChaosSummary summarize(const Spectrum& s, std::int64_t L, const SummaryOptions& o) {
   ChaosSummary r;
   const auto& e = s.exponents;
-  if (e.empty()) throw std::invalid_argument("summarize: empty spectrum");
+  if (e.empty()) throw InvalidInput("summarize: empty spectrum");
   r.lambda_max = e.front();
   const bool per = s.errors.size() == e.size();
   const double zero = std::max(o.zero_tol, s.error_bound);
@@ -183,7 +184,7 @@ DenseEig dense_eigenvalues(std::vector<double> a, std::int64_t n) {
                                          &ilo, &ihi, scale.data(), &abnrm, rconde.data(),
                                          rcondv.data());
   if (info != 0)
-    throw std::runtime_error("LAPACK dgeevx failed (info = " + std::to_string(info) + ")");
+    throw SolverError("LAPACK dgeevx failed (info = " + std::to_string(info) + ")");
   const double eps = std::numeric_limits<double>::epsilon();
   const std::size_t nn = static_cast<std::size_t>(n);
   r.err.resize(nn);

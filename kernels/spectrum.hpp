@@ -86,7 +86,7 @@ void histogram(const std::vector<double>& values, double lo, double hi, int bins
 // coefficient size: about 0.05 s at 128, 1-2 s at 256, 30 s at 512 on a 2024
 // laptop core); beyond it they are the exponents within their error estimate
 // (ZeroRule::Numerical). Throws ModelError for bad circuits and
-// std::runtime_error when LAPACK fails.
+// SolverError when LAPACK fails.
 Spectrum dense_spectrum(const Circuit& c, std::int64_t certify_max = 256);
 
 // Eigenvalues of a dense real row-major n x n matrix with LAPACK dgeevx, with

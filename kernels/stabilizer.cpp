@@ -1,4 +1,5 @@
 #include "stabilizer.hpp"
+#include "errors.hpp"
 
 #include <flint/flint.h>
 #include <flint/nmod_mat.h>
@@ -125,14 +126,14 @@ Problem rotate(const Problem& P, i64 r) {
 
 Problem prepare(const Circuit& c, i64 N, const std::vector<StabilizerSite>& init) {
   std::string why;
-  if (!stabilizer_dimension_supported(N, why)) throw std::invalid_argument("stabilizer: " + why);
+  if (!stabilizer_dimension_supported(N, why)) throw InvalidInput("stabilizer: " + why);
   c.validate();
   if (static_cast<i64>(init.size()) != c.L)
-    throw std::invalid_argument("stabilizer: " + std::to_string(init.size()) +
+    throw InvalidInput("stabilizer: " + std::to_string(init.size()) +
                                 " initial site states for L = " + std::to_string(c.L));
   for (std::size_t i = 0; i < init.size(); ++i)
     if (!stabilizer_site_valid(N, init[i], why))
-      throw std::invalid_argument("stabilizer: site " + std::to_string(i) + ": " + why);
+      throw InvalidInput("stabilizer: site " + std::to_string(i) + ": " + why);
 
   const SparseInt S = assemble_period(c);  // exact int64, reduced mod N once below
   Problem P;
@@ -697,9 +698,9 @@ std::vector<i64> region_columns(const std::vector<std::int64_t>& region, i64 L) 
   std::vector<i64> sites;
   for (i64 s : region) {
     if (s < 0 || s >= L)
-      throw std::invalid_argument("stabilizer: region site " + std::to_string(s) + " is outside [0, " +
+      throw InvalidInput("stabilizer: region site " + std::to_string(s) + " is outside [0, " +
                                   std::to_string(L) + ")");
-    if (seen[s]) throw std::invalid_argument("stabilizer: region site " + std::to_string(s) + " appears twice");
+    if (seen[s]) throw InvalidInput("stabilizer: region site " + std::to_string(s) + " appears twice");
     seen[s] = 1;
     sites.push_back(s);
   }
@@ -779,7 +780,7 @@ bool use_howell(StabilizerMethod method, const std::vector<PrimePower>& fac) {
 
 void require_squarefree(std::int64_t N, const std::vector<PrimePower>& fac) {
   if (!squarefree(fac))
-    throw std::invalid_argument("stabilizer: method Echelon needs square-free N; N = " + std::to_string(N) +
+    throw InvalidInput("stabilizer: method Echelon needs square-free N; N = " + std::to_string(N) +
                                 " = " + factor_string(fac));
 }
 
@@ -801,7 +802,7 @@ std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,
                                              const std::vector<std::int64_t>& region, std::int64_t T,
                                              StabilizerMethod method) {
   const Problem P = prepare(c, N, init);
-  if (T < 0) throw std::invalid_argument("stabilizer: T = " + std::to_string(T) + " < 0");
+  if (T < 0) throw InvalidInput("stabilizer: T = " + std::to_string(T) + " < 0");
   const std::vector<i64> cols = region_columns(region, c.L);
   const auto fac = factorize(P.N);
   std::vector<double> out(static_cast<std::size_t>(T + 1), 0.0);
@@ -830,8 +831,8 @@ std::vector<std::vector<double>> stabilizer_profile(const Circuit& c, std::int64
                                                     const std::vector<StabilizerSite>& init, std::int64_t T,
                                                     std::int64_t stride, StabilizerMethod method) {
   const Problem P = prepare(c, N, init);
-  if (T < 0) throw std::invalid_argument("stabilizer: T = " + std::to_string(T) + " < 0");
-  if (stride < 1) throw std::invalid_argument("stabilizer: stride = " + std::to_string(stride) + " < 1");
+  if (T < 0) throw InvalidInput("stabilizer: T = " + std::to_string(T) + " < 0");
+  if (stride < 1) throw InvalidInput("stabilizer: stride = " + std::to_string(stride) + " < 1");
   const auto fac = factorize(P.N);
   const i64 rows = T / stride + 1, L = c.L;
   std::vector<std::vector<double>> out(static_cast<std::size_t>(rows),
@@ -862,7 +863,7 @@ double stabilizer_work_bytes(std::int64_t N, std::int64_t L, bool profile) {
   // after another, so one set of rows is alive at a time. The profile's
   // echelon form is a second copy; the Howell path (N not square-free) forms
   // up to max(L, 2L) x 2L words per cut (howell_pivots).
-  if (N < 2) throw std::invalid_argument("stabilizer_work_bytes: N = " + std::to_string(N) + " < 2");
+  if (N < 2) throw InvalidInput("stabilizer_work_bytes: N = " + std::to_string(N) + " < 2");
   const auto fac = factorize(static_cast<u64>(N));
   const double l = static_cast<double>(L);
   const double word_rows = l * 2 * l * static_cast<double>(sizeof(mp_limb_t));

@@ -104,7 +104,7 @@ bool stabilizer_dimension_supported(std::int64_t N, std::string& why);
 bool stabilizer_site_valid(std::int64_t N, const StabilizerSite& s, std::string& why);
 
 // Entropies in nats of `region` (distinct sites in [0, L), any order, may be
-// empty) at t = 0..T (T + 1 values). Throws std::invalid_argument for an
+// empty) at t = 0..T (T + 1 values). Throws InvalidInput (kernels/errors.hpp) for an
 // unsupported N, init.size() != L, an invalid site, a bad region or T < 0;
 // ModelError for an invalid circuit; OverflowError if assembling S overflows.
 std::vector<double> stabilizer_entropy_curve(const Circuit& c, std::int64_t N,

@@ -1,4 +1,5 @@
 #include "unit_circle.hpp"
+#include "errors.hpp"
 
 #include <arb_fmpz_poly.h>
 #include <flint/fmpz_mat.h>
@@ -45,7 +46,7 @@ bool palindromic(const fmpz_poly_struct* h) {
 void trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* h) {
   const slong deg = fmpz_poly_degree(h);
   if (deg < 0 || deg % 2 != 0 || !palindromic(h))
-    throw std::invalid_argument("trace_polynomial: needs a palindromic polynomial of even degree");
+    throw InvalidInput("trace_polynomial: needs a palindromic polynomial of even degree");
   const slong m = deg / 2;
   // x^j + x^-j = V_j(y), y = x + 1/x: V_0 = 2, V_1 = y, V_{j+1} = y V_j - V_{j-1}
   // (Dickson polynomials). h / x^m = a_m + sum_{j>=1} a_{m+j} V_j(y).
@@ -87,14 +88,14 @@ std::int64_t roots_between_minus2_and_2(const fmpz_poly_struct* f) {
   fmpz_one(one.get());
   fmpz_poly_taylor_shift(r.get(), r.get(), one.get());  // s = t + 1
   if (fmpz_poly_degree(r.get()) != d || fmpz_is_zero(r.get()->coeffs))
-    throw std::invalid_argument("roots_between_minus2_and_2: f vanishes at -2 or 2");
+    throw InvalidInput("roots_between_minus2_and_2: f vanishes at -2 or 2");
   slong neg = 0, pos = 0;
   _fmpz_poly_num_real_roots_sturm(&neg, &pos, r.get()->coeffs, fmpz_poly_length(r.get()));
   return static_cast<std::int64_t>(pos);
 }
 
 void circle_trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* p, CircleCensus& c) {
-  if (fmpz_poly_is_zero(p)) throw std::invalid_argument("circle_census: zero polynomial");
+  if (fmpz_poly_is_zero(p)) throw InvalidInput("circle_census: zero polynomial");
   c = CircleCensus{};
   c.degree = fmpz_poly_degree(p);
   Poly a, rev, g;
@@ -155,7 +156,7 @@ void integer_charpoly(fmpz_poly_struct* out, const SparseInt& A) {
 
 bool certified_log_moduli(const fmpz_poly_struct* p, const CircleCensus& census,
                           std::vector<std::pair<double, double>>& out, long max_prec) {
-  if (census.at_zero != 0) throw std::invalid_argument("certified_log_moduli: p(0) = 0");
+  if (census.at_zero != 0) throw InvalidInput("certified_log_moduli: p(0) = 0");
   flint::PolyFactors fac;
   fmpz_poly_factor_squarefree(fac.get(), p);
   for (slong prec = 64; prec <= max_prec; prec *= 2) {

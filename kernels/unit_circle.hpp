@@ -39,7 +39,7 @@ struct CircleCensus {
   std::int64_t at_minus_one = 0;  // multiplicity of the root -1
 };
 
-// Census of a nonzero integer polynomial. Throws std::invalid_argument for
+// Census of a nonzero integer polynomial. Throws InvalidInput (kernels/errors.hpp) for
 // the zero polynomial.
 CircleCensus circle_census(const fmpz_poly_struct* p);
 // The same from coefficients, lowest degree first (for tests and small cases).
@@ -53,7 +53,7 @@ CircleCensus circle_census(const std::vector<std::int64_t>& coeffs_low_to_high);
 void circle_trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* p, CircleCensus& c);
 
 // T with h(x) = x^m T(x + 1/x), for a palindromic h of even degree 2m.
-// Throws std::invalid_argument when h is not palindromic of even degree.
+// Throws InvalidInput (kernels/errors.hpp) when h is not palindromic of even degree.
 void trace_polynomial(fmpz_poly_struct* T, const fmpz_poly_struct* h);
 
 // Number of roots of a squarefree f in Z[y] in the open interval (-2, 2),

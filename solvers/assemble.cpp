@@ -1,4 +1,5 @@
 #include "assemble.hpp"
+#include "errors.hpp"
 
 #include "brickwall_detail.hpp"
 
@@ -34,7 +35,7 @@ PetscInt DistMatrix::index(std::int64_t c) const {
 void check_index_limit(std::int64_t n, const char* what) {
   const std::int64_t lim = static_cast<std::int64_t>(PETSC_MAX_INT);
   if (n > lim)
-    throw std::runtime_error(std::string("toral: ") + what + " has global dimension " +
+    throw SolverError(std::string("toral: ") + what + " has global dimension " +
                              std::to_string(n) + ", which exceeds the " +
                              std::to_string(8 * sizeof(PetscInt)) + "-bit PetscInt limit " +
                              std::to_string(lim) +
@@ -295,12 +296,12 @@ DistMatrix assemble_distributed(MPI_Comm comm, const GateSource& g, std::int64_t
       if (!diag) buf[static_cast<std::size_t>(k++)] = {row, 0};
       std::sort(buf.begin(), buf.begin() + k);
       if (static_cast<std::int64_t>(cols.size()) + k > static_cast<std::int64_t>(PETSC_MAX_INT))
-        throw std::runtime_error("toral: more than " + std::to_string(PETSC_MAX_INT) +
+        throw SolverError("toral: more than " + std::to_string(PETSC_MAX_INT) +
                                  " non-zeros on one rank exceed the 32-bit PetscInt; use more ranks");
       for (int e = 0; e < k; ++e) {
         const std::int64_t v = buf[static_cast<std::size_t>(e)].second;
         if (v > kMaxExactDouble || v < -kMaxExactDouble)
-          throw std::runtime_error("toral: entry " + std::to_string(v) + " of " + operator_name(op) +
+          throw SolverError("toral: entry " + std::to_string(v) + " of " + operator_name(op) +
                                    " (coordinate " + std::to_string(d.coordinate(row)) +
                                    ", period " + std::to_string(t) +
                                    ") exceeds 2^53 and is not exact in double precision");
@@ -339,7 +340,7 @@ SparseInt gather_to_root(const DistMatrix& d, int root) {
       for (PetscInt k = 0; k < nc; ++k) {
         if (x[k] == 0.0) continue;
         if (x[k] != std::nearbyint(x[k]) || std::fabs(x[k]) > static_cast<double>(kMaxExactDouble))
-          throw std::runtime_error("gather_to_root: entry is not an exact integer");
+          throw SolverError("gather_to_root: entry is not an exact integer");
         rc.push_back(d.coordinate(r));
         rc.push_back(d.coordinate(c[k]));
         v.push_back(x[k]);
@@ -347,7 +348,7 @@ SparseInt gather_to_root(const DistMatrix& d, int root) {
       TORAL_PCALL(MatRestoreRow(d.mat(), r, &nc, &c, &x));
     }
     if (v.size() > static_cast<std::size_t>(std::numeric_limits<int>::max() / 2))
-      throw std::runtime_error("gather_to_root: matrix too large to gather");
+      throw SolverError("gather_to_root: matrix too large to gather");
   });
   int cnt = static_cast<int>(v.size());
   std::vector<int> counts(static_cast<std::size_t>(size)), displ(static_cast<std::size_t>(size));

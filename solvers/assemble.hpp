@@ -20,9 +20,9 @@
 //
 // Limits: PETSc here uses 32-bit PetscInt, so the global dimension must be
 // at most 2^31 - 1 (L <= 2147483647 for M, L <= 1073741823 for S); beyond
-// that assembly throws std::runtime_error ("... exceeds the 32-bit PetscInt
+// that assembly throws SolverError ("... exceeds the 32-bit PetscInt
 // limit ...") before any work. Entries are stored as doubles; an entry above
-// 2^53 in magnitude (not exactly representable) is also a std::runtime_error,
+// 2^53 in magnitude (not exactly representable) is also a SolverError,
 // and an int64 overflow while multiplying gates an OverflowError. Invalid
 // gates throw ModelError. All of these are raised on every rank of the
 // communicator (collectively), so callers may catch them without deadlock.
@@ -69,7 +69,7 @@ struct DistMatrix {
   PetscInt index(std::int64_t coordinate) const;
 };
 
-// Throws std::runtime_error when a global dimension n does not fit PetscInt.
+// Throws SolverError (kernels/errors.hpp) when a global dimension n does not fit PetscInt.
 void check_index_limit(std::int64_t n, const char* what);
 
 // Assembles `op` for period t (t is passed to g.bond / g.site; time-periodic

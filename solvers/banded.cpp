@@ -1,4 +1,5 @@
 #include "banded.hpp"
+#include "errors.hpp"
 
 #include "petsc_util.hpp"
 
@@ -64,9 +65,9 @@ struct Banded {
 
 // Throws on a LAPACK failure.
 void lapack_check(lapack_int info, const char* what) {
-  if (info < 0) throw std::runtime_error(std::string(what) + ": illegal argument " + std::to_string(-info));
+  if (info < 0) throw SolverError(std::string(what) + ": illegal argument " + std::to_string(-info));
   if (info > 0)
-    throw std::runtime_error(std::string(what) + ": exactly singular pivot " + std::to_string(info) +
+    throw SolverError(std::string(what) + ": exactly singular pivot " + std::to_string(info) +
                              " (the shifted matrix or one of its diagonal blocks is singular)");
 }
 
@@ -78,7 +79,7 @@ void setup(Banded<T>& s, Mat Pm, T shift) {
   MPI_Comm_size(s.comm, &s.size);
   PetscInt nn, mm;
   if (MatGetSize(Pm, &nn, &mm) || MatGetOwnershipRange(Pm, &s.r0, &s.r1))
-    throw std::runtime_error("banded: cannot query the matrix");
+    throw SolverError("banded: cannot query the matrix");
   s.n = nn;
   s.m = s.r1 - s.r0;
   // Pass 1: the cyclic half-bandwidth.
@@ -93,7 +94,7 @@ void setup(Banded<T>& s, Mat Pm, T shift) {
     PetscInt nc;
     const PetscInt* c;
     const PetscScalar* x;
-    if (MatGetRow(Pm, r, &nc, &c, &x)) throw std::runtime_error("banded: MatGetRow failed");
+    if (MatGetRow(Pm, r, &nc, &c, &x)) throw SolverError("banded: MatGetRow failed");
     for (PetscInt k = 0; k < nc; ++k) {
       if (x[k] == 0.0) continue;
       PetscInt off = c[k] - r;
@@ -110,11 +111,11 @@ void setup(Banded<T>& s, Mat Pm, T shift) {
   s.b = std::max(s.b, 1);
   const int b = s.b;
   if (mmin < 2 * b)
-    throw std::runtime_error("banded: a rank owns " + std::to_string(mmin) + " rows, fewer than 2b = " +
+    throw SolverError("banded: a rank owns " + std::to_string(mmin) + " rows, fewer than 2b = " +
                              std::to_string(2 * b) + " (use fewer ranks or -st_pc_type lu)");
   s.N = 2 * b * s.size;
   if (s.N > 8192)
-    throw std::runtime_error("banded: reduced system of size " + std::to_string(s.N) +
+    throw SolverError("banded: reduced system of size " + std::to_string(s.N) +
                              " is too large (2 b P <= 8192); use -st_pc_type lu with a parallel package");
   const lapack_int m = static_cast<lapack_int>(s.m);
   // Local phase: any failure is agreed on by all ranks before the next collective.
@@ -131,11 +132,11 @@ void setup(Banded<T>& s, Mat Pm, T shift) {
         s.ab[static_cast<std::size_t>(j) * s.ldab + (2 * b + i - j)] += T(e.v);
       } else if (j >= s.m) {  // next block, its column j - m
         const PetscInt k = j - s.m, ib = i - (s.m - b);
-        if (k >= b || ib < 0) throw std::runtime_error("banded: entry outside the coupling blocks");
+        if (k >= b || ib < 0) throw SolverError("banded: entry outside the coupling blocks");
         B[static_cast<std::size_t>(k) * b + ib] += e.v;  // column-major b x b
       } else {  // previous block, its column (j + b) among its last b
         const PetscInt k = j + b;
-        if (k < 0 || i >= b) throw std::runtime_error("banded: entry outside the coupling blocks");
+        if (k < 0 || i >= b) throw SolverError("banded: entry outside the coupling blocks");
         C[static_cast<std::size_t>(k) * b + i] += e.v;
       }
     }
@@ -272,7 +273,7 @@ PetscErrorCode quad_destroy(Mat S) {
 PetscErrorCode make_quadratic_inverse(Mat A, std::complex<double> sigma, Mat* shell) {
   auto* q = new Quad;
   try {
-    if (sigma.imag() == 0.0) throw std::runtime_error("make_quadratic_inverse: sigma must be complex");
+    if (sigma.imag() == 0.0) throw SolverError("make_quadratic_inverse: sigma must be complex");
     q->im = sigma.imag();
     setup(q->f, A, sigma);
   } catch (...) {

@@ -22,7 +22,7 @@
 // MPI_Allgather of 2b values per rank, a small dense solve and a local
 // update x_p = g_p - V_p t_{p+1} - W_p d_{p-1}.
 //
-// Requirements (checked, std::runtime_error otherwise): every entry within
+// Requirements (checked, SolverError otherwise): every entry within
 // cyclic distance b of the diagonal with b the same on all ranks, every rank
 // owning at least 2b rows, and 2bP <= 8192 (the dense reduced system; beyond,
 // use -<prefix>st_pc_type lu with a parallel factorisation package).
@@ -47,7 +47,7 @@ PetscErrorCode pc_set_banded(PC pc);
 // A - sigma I (same scheme as above, LAPACK zgbtrf). Its eigenvalues are
 // 1 / ((mu - sigma)(mu - conj sigma)): the largest belong to the eigenvalues
 // mu of A nearest sigma and conj(sigma). Collective; throws
-// std::runtime_error on a failure (on every rank).
+// SolverError on a failure (on every rank).
 PetscErrorCode make_quadratic_inverse(Mat A, std::complex<double> sigma, Mat* shell);
 
 }  // namespace toral

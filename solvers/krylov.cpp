@@ -1,4 +1,5 @@
 #include "krylov.hpp"
+#include "errors.hpp"
 
 #include <Random123/philox.h>
 #include <lapacke.h>
@@ -134,7 +135,7 @@ std::vector<Eig> rayleigh_ritz(EPS eps, Mat A, PetscInt nconv) {
       Y(static_cast<std::size_t>(n) * n);
   const lapack_int info = LAPACKE_dgeev(LAPACK_COL_MAJOR, 'N', 'V', n, H.data(), n, wr.data(), wi.data(),
                                         nullptr, n, Y.data(), n);
-  if (info != 0) throw std::runtime_error("Rayleigh-Ritz: LAPACK dgeev failed");
+  if (info != 0) throw SolverError("Rayleigh-Ritz: LAPACK dgeev failed");
   auto combine = [&](const double* y, Vec x) {
     TORAL_PCALL(VecSet(x, 0.0));
     TORAL_PCALL(VecMAXPY(x, n, y, V.data()));
@@ -457,7 +458,7 @@ OpOutcome shift_invert(Context& cx, const StageOut& ks, int nev) {
       break;
     }
     if (st.info.converged < st.info.requested)
-      throw std::runtime_error("shift-invert did not converge: " + stage_summary(st));
+      throw SolverError("shift-invert did not converge: " + stage_summary(st));
     found.push_back({cd(sp.sigma, 0.0), false, st.eigs});
   }
   const bool can_complex = banded_applies(A);
@@ -477,7 +478,7 @@ OpOutcome shift_invert(Context& cx, const StageOut& ks, int nev) {
     StageOut st = run_stage(A, sp);
     cx.record(st);
     if (st.info.converged == 0)
-      throw std::runtime_error("shift-invert (complex target) did not converge: " + stage_summary(st));
+      throw SolverError("shift-invert (complex target) did not converge: " + stage_summary(st));
     found.push_back({sigma, true, st.eigs});
   }
   // Merge. Each eigenvalue belongs to the target nearest to it (distance
@@ -545,7 +546,7 @@ OpOutcome solve_operator(Context& cx, int nev) {
     r.eigs = ks.eigs;
     return r;
   }
-  if (pol == "largest") throw std::runtime_error("Krylov-Schur did not converge: " + stage_summary(ks));
+  if (pol == "largest") throw SolverError("Krylov-Schur did not converge: " + stage_summary(ks));
   return shift_invert(cx, ks, nev);
 }
 
@@ -567,24 +568,24 @@ KrylovResult krylov_top(MPI_Comm comm, const GateSource& g, const KrylovOptions&
   const double t0 = MPI_Wtime();
   KrylovResult res;
   try {
-    if (!slepc_ready()) throw std::runtime_error("krylov_top: SlepcInitialize has not been called");
+    if (!slepc_ready()) throw SolverError("krylov_top: SlepcInitialize has not been called");
     if (o.policy != "auto" && o.policy != "largest" && o.policy != "shift_invert")
-      throw std::invalid_argument("krylov_top: policy '" + o.policy +
+      throw InvalidInput("krylov_top: policy '" + o.policy +
                                   "' (expected auto, largest or shift_invert)");
     if (o.si_solver != "banded" && o.si_solver != "mumps")
-      throw std::invalid_argument("krylov_top: si_solver '" + o.si_solver + "' (expected banded or mumps)");
-    if (o.nev < 1) throw std::invalid_argument("krylov_top: nev must be >= 1");
+      throw InvalidInput("krylov_top: si_solver '" + o.si_solver + "' (expected banded or mumps)");
+    if (o.nev < 1) throw InvalidInput("krylov_top: nev must be >= 1");
     if (o.power < 1 || o.power % 2 == 0)
-      throw std::invalid_argument("krylov_top: power must be odd and >= 1 (an even power merges mu and -mu)");
+      throw InvalidInput("krylov_top: power must be odd and >= 1 (an even power merges mu and -mu)");
     if (!(o.tol > 0) || o.max_it < 1)
-      throw std::invalid_argument("krylov_top: tol must be > 0 and max_it >= 1");
+      throw InvalidInput("krylov_top: tol must be > 0 and max_it >= 1");
     if (!g.time_periodic)
-      throw std::invalid_argument(
+      throw InvalidInput(
           "krylov_top: gates are redrawn every period (time_periodic = false): there is no "
           "one-period eigenproblem; use tangent_top");
     const bool clean = g.translation_invariant;
     if (clean && g.boundary == Boundary::Periodic && o.policy == "auto")
-      throw std::invalid_argument(
+      throw InvalidInput(
           "krylov_top: clean periodic ring: its top is a near-continuum (Krylov-Schur does not "
           "converge); bloch_spectrum is exact there");
     const bool pos = g.position_class && !g.has_site_layer;
@@ -661,7 +662,7 @@ KrylovResult krylov_top(MPI_Comm comm, const GateSource& g, const KrylovOptions&
       for (const Eig& e : outs[q].eigs) items.push_back({std::log(std::abs(e.mu)), e.mu, e.resid, q});
     std::stable_sort(items.begin(), items.end(), [](const Item& a, const Item& b) { return a.lam > b.lam; });
     if (items.size() < static_cast<std::size_t>(K))
-      throw std::runtime_error("krylov_top: only " + std::to_string(items.size()) + " of " +
+      throw SolverError("krylov_top: only " + std::to_string(items.size()) + " of " +
                                std::to_string(K) + " eigenvalues converged");
     for (std::size_t i = 0; i < static_cast<std::size_t>(K); ++i) {
       res.exponents.push_back(items[i].lam);

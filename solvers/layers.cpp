@@ -1,4 +1,5 @@
 #include "layers.hpp"
+#include "errors.hpp"
 
 #include <algorithm>
 #include <array>
@@ -105,7 +106,7 @@ void fetch_gates(LayerCtx& c, const GateSource& g, std::int64_t t) {
   double big = 0.0;
   for (const Layer& ly : c.layer)
     for (double v : ly.G) big = std::max(big, v < 0 ? -v : v);
-  if (big > 9007199254740992.0) throw std::runtime_error("layer operator: a gate entry exceeds 2^53");
+  if (big > 9007199254740992.0) throw SolverError("layer operator: a gate entry exceeds 2^53");
   c.store = big <= 127 ? GateStore::Int8 : big <= 16777216.0 ? GateStore::Float : GateStore::Double;
   for (Layer& ly : c.layer) {
     ly.Gf.clear();
@@ -395,7 +396,7 @@ DistMatrix make_layer_operator(MPI_Comm comm, const GateSource& g, std::int64_t 
       int small = mine < 2 ? 1 : 0;
       MPI_Allreduce(MPI_IN_PLACE, &small, 1, MPI_INT, MPI_MAX, comm);
       if (small)
-        throw std::runtime_error("layer operator: every rank must own at least 2 sites (L = " +
+        throw SolverError("layer operator: every rank must own at least 2 sites (L = " +
                                  std::to_string(g.L) + " on " + std::to_string(size) + " ranks)");
       c->comm = comm;
       c->w = op == Operator::S ? 2 : 1;

@@ -14,7 +14,7 @@
 // Used for the Krylov-Schur stage (powers of the operator, krylov.cpp) and by
 // the tangent method (tangent.cpp), where the gates of redrawn circuits are
 // replaced every period with layer_operator_set_period (no re-assembly).
-// Needs every rank to own at least 2 sites (std::runtime_error otherwise).
+// Needs every rank to own at least 2 sites (SolverError otherwise).
 #pragma once
 #include <mpi.h>
 

@@ -1,4 +1,5 @@
 #include "petsc_util.hpp"
+#include "errors.hpp"
 
 #include <vector>
 
@@ -34,7 +35,9 @@ void agree_on_error(MPI_Comm comm, int local_kind, const std::string& local_erro
   switch (kind) {
     case 1: throw ModelError(msg);
     case 2: throw OverflowError(msg);
-    default: throw std::runtime_error(msg);
+    case 4: throw InvalidInput(msg);
+    case 5: throw std::logic_error(msg);
+    default: throw SolverError(msg);
   }
 }
 

@@ -69,7 +69,9 @@ using UniqueBV = PetscOwner<BV, BVDestroy>;
 // phase that may have failed (`local_error` empty = success). If any rank
 // failed, all ranks throw the same exception: the message (and kind) of the
 // lowest failing rank, prefixed by "rank r: " when comm has several ranks.
-// kind: 0 = none, 1 = ModelError, 2 = OverflowError, 3 = std::runtime_error.
+// kind: 0 = none, 1 = ModelError, 2 = OverflowError, 3 = SolverError, 4 =
+// another InvalidInput, 5 = anything else (rethrown as std::logic_error: an
+// internal error; kernels/errors.hpp).
 void agree_on_error(MPI_Comm comm, int local_kind, const std::string& local_error);
 
 // Runs f() and converts an exception into (kind, message) for agree_on_error.

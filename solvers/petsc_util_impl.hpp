@@ -18,8 +18,14 @@ void collective_phase(MPI_Comm comm, F&& f) {
   } catch (const OverflowError& e) {
     kind = 2;
     msg = e.what();
-  } catch (const std::exception& e) {
+  } catch (const SolverError& e) {
     kind = 3;
+    msg = e.what();
+  } catch (const InvalidInput& e) {
+    kind = 4;
+    msg = e.what();
+  } catch (const std::exception& e) {
+    kind = 5;  // a bug or a resource failure (kernels/errors.hpp)
     msg = e.what();
   }
   agree_on_error(comm, kind, msg);

@@ -1,4 +1,5 @@
 #include "tangent.hpp"
+#include "errors.hpp"
 
 #include <Random123/philox.h>
 #include <slepcbv.h>
@@ -54,10 +55,10 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
   const double t_start = MPI_Wtime();
   TangentResult res;
   try {
-    if (!slepc_ready()) throw std::runtime_error("tangent_top: SlepcInitialize has not been called");
-    if (o.k < 1) throw std::invalid_argument("tangent_top: k must be >= 1");
+    if (!slepc_ready()) throw SolverError("tangent_top: SlepcInitialize has not been called");
+    if (o.k < 1) throw InvalidInput("tangent_top: k must be >= 1");
     if (o.periods < 2 || o.windows < 2 || o.periods < o.windows || o.transient < 0)
-      throw std::invalid_argument("tangent_top: needs periods >= windows >= 2 and transient >= 0");
+      throw InvalidInput("tangent_top: needs periods >= windows >= 2 and transient >= 0");
     int size = 1;
     MPI_Comm_size(comm, &size);
     const bool pos = g.position_class && !g.has_site_layer;
@@ -184,7 +185,7 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
         const double rounding = 256.0 * kEps * std::max(1.0, std::fabs(lam));
         const double err2 = se * se + bias * bias + rounding * rounding;
         if (!std::isfinite(lam) || !std::isfinite(err2))
-          throw std::runtime_error("tangent_top: non-finite exponent (a tangent vector collapsed)");
+          throw SolverError("tangent_top: non-finite exponent (a tangent vector collapsed)");
         items.push_back({lam, err2, se, drift, 0.0, operator_name(c.op)});
       }
     }
