@@ -118,6 +118,13 @@ void check_accuracy(const PointRecord& r, double max_error, Fail&& fail) {
 
 }  // namespace
 
+PointFailure point_failure(const std::exception& e) {
+  if (dynamic_cast<const OverflowError*>(&e)) return {PointStatus::Overflow, e.what()};
+  if (dynamic_cast<const InvalidInput*>(&e)) return {PointStatus::InvalidModel, e.what()};
+  if (dynamic_cast<const SolverError*>(&e)) return {PointStatus::SolverFailed, std::string("solver: ") + e.what()};
+  return {PointStatus::InternalError, std::string("internal error (please report): ") + e.what()};
+}
+
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group) {
   const auto t0 = std::chrono::steady_clock::now();
   PointRecord r;
@@ -155,7 +162,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
         r.solver_time = kr.wall_seconds;
         r.cluster_count = kr.cluster_count;
         r.cluster_spread = kr.cluster_spread;
-        if (!kr.ok) throw std::runtime_error("krylov: " + kr.message);
+        if (!kr.ok) throw SolverError("krylov: " + kr.message);
         top = kr.exponents;
         err = kr.residuals;  // first order: a relative residual r moves ln|mu| by about r
       } else {
@@ -170,7 +177,7 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
         r.solver_converged = static_cast<std::int64_t>(tr.exponents.size());
         r.solver_iterations = tr.periods;
         r.solver_time = tr.wall_seconds;
-        if (!tr.ok) throw std::runtime_error("tangent: " + tr.message);
+        if (!tr.ok) throw SolverError("tangent: " + tr.message);
         top = tr.exponents;
         err = tr.errors;
       }
@@ -251,12 +258,9 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
       r.limit_hist_edges = bl.hist_edges;
     }
     check_accuracy(r, c.spectrum.max_error, fail);
-  } catch (const OverflowError& e) {
-    fail(PointStatus::Overflow, e.what());
-  } catch (const ModelError& e) {
-    fail(PointStatus::InvalidModel, e.what());
   } catch (const std::exception& e) {
-    fail(PointStatus::SolverFailed, std::string("solver: ") + e.what());
+    const PointFailure pf = point_failure(e);
+    fail(pf.status, pf.message);
   }
   // The diagnostics (driver/diagnostics.cpp) after the spectrum: they read
   // the exponents and the bounds.

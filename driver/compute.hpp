@@ -4,6 +4,8 @@
 #pragma once
 #include <mpi.h>
 
+#include <exception>
+#include <string>
 #include <vector>
 
 #include "config.hpp"
@@ -35,6 +37,16 @@ std::vector<std::int64_t> region_cuts(const Config& c, const Point& p);
 // others); every rank of it must call with the same point. Only the record
 // of the group's rank 0 is complete (the diagnostics keep only its output).
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group = MPI_COMM_SELF);
+
+// The status and message of a point whose computation threw `e`, by the
+// exception's layer (kernels/errors.hpp): OverflowError -> overflow,
+// InvalidInput (ModelError among them) -> invalid_model, SolverError ->
+// solver_failed, anything else -> internal_error.
+struct PointFailure {
+  PointStatus status;
+  std::string message;
+};
+PointFailure point_failure(const std::exception& e);
 
 // A rough cost model (floating-point operations) used by `check`.
 double estimated_flops(const Config& c, const Point& p);

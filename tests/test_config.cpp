@@ -6,6 +6,9 @@
 #include "entangle.hpp"
 #include "default_config.hpp"
 #include "sweep.hpp"
+#include "compute.hpp"
+#include "errors.hpp"
+#include "record.hpp"
 
 using namespace toral;
 
@@ -384,4 +387,23 @@ TEST(Config, EntanglementLocatedErrors) {
   // a profile alone needs no regions
   EXPECT_NO_THROW(parse_config(ent("periods = 4\nregions = []\ngaussian = false\nstabilizer_dims = 2\nprofile = true\n"),
                                "t.toml"));
+}
+
+// Errors by layer (kernels/errors.hpp): each exception kind becomes its own
+// point status, with its message; what is not a documented kernel error is
+// an internal error (status 5), never a solver failure.
+TEST(Errors, PointStatusByLayer) {
+  using toral::PointStatus;
+  auto check = [](const std::exception& e, PointStatus want, const std::string& text) {
+    const toral::PointFailure f = toral::point_failure(e);
+    EXPECT_EQ(static_cast<int>(f.status), static_cast<int>(want)) << e.what();
+    EXPECT_NE(f.message.find(text), std::string::npos) << f.message;
+  };
+  check(toral::OverflowError("int64 overflow in product"), PointStatus::Overflow, "int64 overflow");
+  check(toral::ModelError("bond 3: det = 2"), PointStatus::InvalidModel, "bond 3");
+  check(toral::InvalidInput("region out of range"), PointStatus::InvalidModel, "region out of range");
+  check(toral::SolverError("Krylov-Schur did not converge"), PointStatus::SolverFailed, "solver: Krylov-Schur");
+  check(std::logic_error("bloch_spectrum: orbit count"), PointStatus::InternalError, "internal error");
+  check(std::bad_alloc(), PointStatus::InternalError, "internal error");
+  check(std::runtime_error("something unforeseen"), PointStatus::InternalError, "something unforeseen");
 }
