@@ -81,6 +81,9 @@ const std::vector<const Diagnostic*>& diagnostics();
 
 // The spec of registry entry k from a parsed config (never null).
 const DiagnosticSpec& diagnostic_spec(const Config& c, std::size_t k);
+// The spec of diagnostic d (which must be in the registry); a diagnostic
+// reads its own back with static_cast<const ItsSpec&>(diagnostic_spec(c, d)).
+const DiagnosticSpec& diagnostic_spec(const Config& c, const Diagnostic& d);
 
 // The schema of the enabled diagnostics of `c`, concatenated in registry
 // order; `offsets` (when given) receives each diagnostic's first field index

@@ -31,6 +31,13 @@ const DiagnosticSpec& diagnostic_spec(const Config& c, std::size_t k) {
   return *absent[k];
 }
 
+const DiagnosticSpec& diagnostic_spec(const Config& c, const Diagnostic& d) {
+  const auto& reg = diagnostics();
+  for (std::size_t k = 0; k < reg.size(); ++k)
+    if (reg[k] == &d) return diagnostic_spec(c, k);
+  throw std::logic_error("diagnostic '" + d.table() + "' missing from the registry (driver/diagnostics.cpp)");
+}
+
 Schema run_schema(const Config& c, std::vector<std::size_t>* offsets) {
   Schema s;
   const auto& reg = diagnostics();

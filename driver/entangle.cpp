@@ -938,10 +938,7 @@ const Diagnostic& entanglement_diagnostic() {
 }
 
 const EntanglementSpec& entanglement_spec(const Config& c) {
-  const auto& reg = diagnostics();
-  for (std::size_t k = 0; k < reg.size(); ++k)
-    if (reg[k] == &entanglement_diagnostic()) return static_cast<const EntanglementSpec&>(diagnostic_spec(c, k));
-  throw std::logic_error("entanglement diagnostic missing from the registry");
+  return static_cast<const EntanglementSpec&>(diagnostic_spec(c, entanglement_diagnostic()));
 }
 
 EntanglementValues entanglement_values(const Config& c, const PointRecord& r) {
