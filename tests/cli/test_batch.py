@@ -44,6 +44,9 @@ local_dims = [2, 3]
 periods = 12
 regions = [2]
 stabilizer_dims = [2]
+
+[bands]
+grid = 9
 """
 NPOINTS = 3 * 10 + 2 * 2
 
