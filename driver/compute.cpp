@@ -77,6 +77,15 @@ double estimated_flops(const Config& c, const Point& p) {
 
 namespace {
 
+// spectrum.krylov.policy (its TOML spelling, checked by parse_config) as the
+// solver's enum: the one place where the driver reads it.
+KrylovPolicy krylov_policy(const std::string& toml) {
+  if (toml == "auto") return KrylovPolicy::Auto;
+  if (toml == "largest") return KrylovPolicy::Largest;
+  if (toml == "shift_invert") return KrylovPolicy::ShiftInvert;
+  throw std::invalid_argument("spectrum.krylov.policy \"" + toml + "\" (expected auto, largest or shift_invert)");
+}
+
 // Bounds from whatever top of the spectrum is known.
 void fill_bounds(PointRecord& r, const Config& c, const Point& p, const std::vector<double>& top, double lambda_max,
                  double ks_rate) {
@@ -144,11 +153,11 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
         ko.nev = static_cast<int>(S.krylov.count);
         ko.tol = S.krylov.tolerance;
         ko.max_it = static_cast<int>(S.krylov.max_restarts);
-        ko.policy = S.krylov.policy;
+        ko.policy = krylov_policy(S.krylov.policy);
         ko.cluster_tol = S.krylov.cluster_tolerance;
         const KrylovResult kr = krylov_top(group, gs, ko);
-        r.solver = static_cast<std::int32_t>(kr.method == "shift-invert" ? SolverCode::ShiftInvert
-                                                                         : SolverCode::KrylovSchur);
+        r.solver = static_cast<std::int32_t>(kr.method == KrylovMethod::ShiftInvert ? SolverCode::ShiftInvert
+                                                                                    : SolverCode::KrylovSchur);
         r.solver_converged = kr.converged;
         r.solver_iterations = kr.iterations;
         r.solver_residual = kr.max_residual;

@@ -58,7 +58,7 @@ struct KrylovSpec {
   std::int64_t count = 16;          // top exponents wanted
   double tolerance = 1e-12;         // relative residual
   std::int64_t max_restarts = 100;
-  std::string policy = "auto";      // auto | largest | shift_invert
+  std::string policy = "auto";      // auto | largest | shift_invert (KrylovPolicy where compute_point builds the options)
   double cluster_tolerance = 1e-6;  // exponent distance from lambda_max counted as one cluster
   std::int64_t ranks_per_point = 0;  // 0: automatic from the matrix dimension
 };
