@@ -71,8 +71,12 @@ struct TangentSpec {
   std::int64_t windows = 20;
 };
 
+// spectrum.method: Auto picks per point (planned_method, driver/compute.cpp);
+// the others force that method on every point.
+enum class SpectrumMethod { Auto, Bloch, Dense, Krylov, Tangent };
+
 struct SpectrumSpec {
-  std::string method = "auto";  // auto | bloch | dense | krylov | tangent
+  SpectrumMethod method = SpectrumMethod::Auto;  // auto | bloch | dense | krylov | tangent
   KrylovSpec krylov;
   TangentSpec tangent;
   std::int64_t dense_max = 4096;  // largest matrix dimension for dense
@@ -83,10 +87,14 @@ struct SpectrumSpec {
   std::int64_t method_line = 0;
 };
 
+// bounds.placement: regions in the bulk (two cuts) or, on open chains, at an
+// end (one cut).
+enum class Placement { Bulk, Edge };
+
 struct BoundsSpec {
   std::vector<std::int64_t> regions = {1, 2, 4, 8};
   std::vector<std::int64_t> local_dims = {2, 3, 5, 7};
-  std::string placement = "bulk";  // bulk (two cuts) | edge (open chains: one cut)
+  Placement placement = Placement::Bulk;  // bulk (two cuts) | edge (open chains: one cut)
 };
 
 struct Config {
