@@ -349,132 +349,171 @@ struct FarmTally {
 // finished record, writes checkpoints and progress, and on a stop signal
 // writes a checkpoint and exits with kExitInterrupted. Appends the records it
 // computed to `local`.
-FarmTally coordinate(MPI_Comm comm, const Config& c, const RunOptions& o, const RunSetup& s, const GroupPlan& plan,
-                     const ResumeState& resume, JournalWriter& journal, std::vector<PointRecord>& local) {
-  const std::vector<Point>& points = s.points;
-  const ParamTable& table = s.table;
-  const Groups& groups = plan.groups;
-  const std::int64_t total = static_cast<std::int64_t>(s.mine.size());
-  const Todo t = plan_todo(c, s, plan, resume);
-  const std::vector<std::int64_t>& todo = t.single;
-  const std::vector<std::int64_t>& todo_group = t.group;
+class Coordinator {
+ public:
+  Coordinator(MPI_Comm comm, const Config& c, const RunOptions& o, const RunSetup& s, const GroupPlan& plan,
+              const ResumeState& resume, JournalWriter& journal, std::vector<PointRecord>& local)
+      : comm_(comm), c_(c), o_(o), s_(s), groups_(plan.groups), journal_(journal), local_(local),
+        todo_(plan_todo(c, s, plan, resume)), total_(static_cast<std::int64_t>(s.mine.size())),
+        active_workers_(s.size - 1), active_leaders_(plan.groups.phase ? plan.groups.count - 1 : 0),
+        own_group_open_(plan.groups.phase) {
+    tally_.all = resume.done;
+    for (const auto& r : tally_.all) tally_.failed += r.status != 0;
+  }
 
-  FarmTally tally;
-  std::vector<PointRecord>& all = tally.all;
-  all = resume.done;
-  std::int64_t& failed = tally.failed;
-  for (const auto& r : all) failed += r.status != 0;
-  Progress progress(o.quiet, o.progress_seconds, total, static_cast<std::int64_t>(all.size()));
-
-  auto checkpoint = [&]() {
-    std::vector<PointRecord> recs = all;
-    std::vector<char> have(points.size(), 0);
-    for (const auto& r : recs) have[static_cast<std::size_t>(r.index)] = 1;
-    for (std::int64_t i : s.mine)
-      if (!have[static_cast<std::size_t>(i)]) recs.push_back(pending_record(c, table, points[static_cast<std::size_t>(i)]));
-    assign_rows(recs, s.row_of);
-    journal.sync();
-    write_results(MPI_COMM_SELF, o.output, true, s.parts.axes, s.parts.meta, total, recs);
-  };
-  auto commit = [&](PointRecord&& r) {
-    journal.append(r);
-    failed += r.status != 0;
-    all.push_back(std::move(r));
-  };
-
-  std::size_t next = 0, next_group = 0;
-  int active_workers = s.size - 1;       // ranks that will still ask for single points
-  int active_leaders = groups.phase ? groups.count - 1 : 0;  // other groups' leaders
-  bool own_group_open = groups.phase;    // group 0 still waits for distributed points
-  bool local_is_group = false;
-  std::future<PointRecord> mine_now;
-  auto last_checkpoint = Clock::now();
-  auto launch = [&](std::int64_t index, MPI_Comm on) {
-    const Point& p = points[static_cast<std::size_t>(index)];
-    mine_now = std::async(std::launch::async, [&c, &table, &p, on] { return compute_point(c, table, p, on); });
-  };
-  while (true) {
-    if (stop_requested()) {
-      // Stop handing out work; the journal has every finished point.
-      checkpoint();
-      journal.close();
-      std::fprintf(stderr, "\ntoral: stopped by signal %d: %lld of %lld points done; checkpoint in %s, resume with --resume\n",
-                   static_cast<int>(g_stop_signal), static_cast<long long>(all.size()),
-                   static_cast<long long>(total), o.output.c_str());
-      std::fflush(stderr);
-      std::_Exit(kExitInterrupted);
-    }
-    bool busy = false;
-    if (!mine_now.valid()) {
-      if (own_group_open && next_group < todo_group.size()) {
-        // a distributed point for rank group 0 (this rank leads it)
-        long long w = todo_group[next_group++];
-        MPI_Request req;
-        MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups.comm, &req);
-        MPI_Wait(&req, MPI_STATUS_IGNORE);
-        launch(w, groups.comm);
-        local_is_group = true;
-        busy = true;
-      } else if (own_group_open) {
-        // no distributed point left to hand out: release group 0 to the single points
-        long long w = -1;
-        MPI_Request req;
-        MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups.comm, &req);
-        MPI_Wait(&req, MPI_STATUS_IGNORE);
-        own_group_open = false;
-      } else if (!own_group_open && next < todo.size()) {
-        launch(todo[next++], MPI_COMM_SELF);
-        local_is_group = false;
-        busy = true;
+  FarmTally run() {
+    Progress progress(o_.quiet, o_.progress_seconds, total_, static_cast<std::int64_t>(tally_.all.size()));
+    auto last_checkpoint = Clock::now();
+    while (true) {
+      if (stop_requested()) stop();
+      bool busy = start_own_point();
+      busy = collect_own_point() || busy;
+      busy = serve_message() || busy;
+      progress.update(static_cast<std::int64_t>(tally_.all.size()), tally_.failed);
+      if (finished()) break;
+      if (o_.checkpoint_seconds >= 0 && since(last_checkpoint) >= o_.checkpoint_seconds &&
+          (next_ < todo_.single.size() || next_group_ < todo_.group.size())) {
+        checkpoint();
+        last_checkpoint = Clock::now();
+      }
+      if (!busy) {
+        if (mine_now_.valid())
+          mine_now_.wait_for(std::chrono::milliseconds(1));
+        else
+          std::this_thread::sleep_for(std::chrono::milliseconds(1));
       }
     }
-    if (mine_now.valid() && mine_now.wait_for(std::chrono::milliseconds(0)) == std::future_status::ready) {
-      PointRecord r = mine_now.get();
-      local.push_back(r);
-      commit(std::move(r));
-      busy = true;
+    progress.update(static_cast<std::int64_t>(tally_.all.size()), tally_.failed, true);
+    journal_.sync();
+    return std::move(tally_);
+  }
+
+ private:
+  // Stop handing out work; the journal has every finished point.
+  [[noreturn]] void stop() {
+    checkpoint();
+    journal_.close();
+    std::fprintf(stderr, "\ntoral: stopped by signal %d: %lld of %lld points done; checkpoint in %s, resume with --resume\n",
+                 static_cast<int>(g_stop_signal), static_cast<long long>(tally_.all.size()),
+                 static_cast<long long>(total_), o_.output.c_str());
+    std::fflush(stderr);
+    std::_Exit(kExitInterrupted);
+  }
+
+  // The result file from what is finished, the rest pending.
+  void checkpoint() {
+    std::vector<PointRecord> recs = tally_.all;
+    std::vector<char> have(s_.points.size(), 0);
+    for (const auto& r : recs) have[static_cast<std::size_t>(r.index)] = 1;
+    for (std::int64_t i : s_.mine)
+      if (!have[static_cast<std::size_t>(i)])
+        recs.push_back(pending_record(c_, s_.table, s_.points[static_cast<std::size_t>(i)]));
+    assign_rows(recs, s_.row_of);
+    journal_.sync();
+    write_results(MPI_COMM_SELF, o_.output, true, s_.parts.axes, s_.parts.meta, total_, recs);
+  }
+
+  // Every finished record goes to the journal before anything else happens to it.
+  void commit(PointRecord&& r) {
+    journal_.append(r);
+    tally_.failed += r.status != 0;
+    tally_.all.push_back(std::move(r));
+  }
+
+  void launch(std::int64_t index, MPI_Comm on) {
+    const Point& p = s_.points[static_cast<std::size_t>(index)];
+    const Config& c = c_;
+    const ParamTable& table = s_.table;
+    mine_now_ = std::async(std::launch::async, [&c, &table, &p, on] { return compute_point(c, table, p, on); });
+  }
+
+  // When this rank's compute thread is free: the next distributed point for
+  // rank group 0, or group 0's release, or the next single point. True when
+  // a point was started.
+  bool start_own_point() {
+    if (mine_now_.valid()) return false;
+    if (own_group_open_ && next_group_ < todo_.group.size()) {
+      // a distributed point for rank group 0 (this rank leads it)
+      long long w = todo_.group[next_group_++];
+      MPI_Request req;
+      MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups_.comm, &req);
+      MPI_Wait(&req, MPI_STATUS_IGNORE);
+      launch(w, groups_.comm);
+      return true;
+    } else if (own_group_open_) {
+      // no distributed point left to hand out: release group 0 to the single points
+      long long w = -1;
+      MPI_Request req;
+      MPI_Ibcast(&w, 1, MPI_LONG_LONG, 0, groups_.comm, &req);
+      MPI_Wait(&req, MPI_STATUS_IGNORE);
+      own_group_open_ = false;
+    } else if (!own_group_open_ && next_ < todo_.single.size()) {
+      launch(todo_.single[next_++], MPI_COMM_SELF);
+      return true;
     }
+    return false;
+  }
+
+  // Nothing left to hand out or to compute here, and every worker and other
+  // group leader has been told to stop.
+  bool finished() const {
+    return next_ >= todo_.single.size() && !mine_now_.valid() && active_workers_ == 0 && active_leaders_ == 0 &&
+           !own_group_open_;
+  }
+
+  // A finished point of this rank's compute thread. True when there was one.
+  bool collect_own_point() {
+    if (mine_now_.valid() && mine_now_.wait_for(std::chrono::milliseconds(0)) == std::future_status::ready) {
+      PointRecord r = mine_now_.get();
+      local_.push_back(r);
+      commit(std::move(r));
+      return true;
+    }
+    return false;
+  }
+
+  // One message from a worker or a group leader: a request (or a finished
+  // record, which is also a request) answered with the next point of its
+  // kind, or -1 when none is left. True when there was one.
+  bool serve_message() {
     int flag = 0;
     MPI_Status st;
-    MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, comm, &flag, &st);
-    if (flag) {
-      busy = true;
-      const bool group_msg = st.MPI_TAG == kTagGroupRequest || st.MPI_TAG == kTagGroupRecord;
-      if (st.MPI_TAG == kTagRecord || st.MPI_TAG == kTagGroupRecord)
-        commit(decode_record(recv_bytes(st, comm)));
-      else
-        MPI_Recv(nullptr, 0, MPI_BYTE, st.MPI_SOURCE, st.MPI_TAG, comm, MPI_STATUS_IGNORE);
-      long long work = -1;
-      if (group_msg) {
-        if (next_group < todo_group.size()) work = todo_group[next_group++];
-        else --active_leaders;
-        MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagGroupWork, comm);
-      } else {
-        if (next < todo.size()) work = todo[next++];
-        else --active_workers;
-        MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagWork, comm);
-      }
+    MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, comm_, &flag, &st);
+    if (!flag) return false;
+    const bool group_msg = st.MPI_TAG == kTagGroupRequest || st.MPI_TAG == kTagGroupRecord;
+    if (st.MPI_TAG == kTagRecord || st.MPI_TAG == kTagGroupRecord)
+      commit(decode_record(recv_bytes(st, comm_)));
+    else
+      MPI_Recv(nullptr, 0, MPI_BYTE, st.MPI_SOURCE, st.MPI_TAG, comm_, MPI_STATUS_IGNORE);
+    long long work = -1;
+    if (group_msg) {
+      if (next_group_ < todo_.group.size()) work = todo_.group[next_group_++];
+      else --active_leaders_;
+      MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagGroupWork, comm_);
+    } else {
+      if (next_ < todo_.single.size()) work = todo_.single[next_++];
+      else --active_workers_;
+      MPI_Send(&work, 1, MPI_LONG_LONG, st.MPI_SOURCE, kTagWork, comm_);
     }
-    progress.update(static_cast<std::int64_t>(all.size()), failed);
-    if (next >= todo.size() && !mine_now.valid() && active_workers == 0 && active_leaders == 0 && !own_group_open)
-      break;
-    if (o.checkpoint_seconds >= 0 && since(last_checkpoint) >= o.checkpoint_seconds &&
-        (next < todo.size() || next_group < todo_group.size())) {
-      checkpoint();
-      last_checkpoint = Clock::now();
-    }
-    if (!busy) {
-      if (mine_now.valid())
-        mine_now.wait_for(std::chrono::milliseconds(1));
-      else
-        std::this_thread::sleep_for(std::chrono::milliseconds(1));
-    }
+    return true;
   }
-  (void)local_is_group;
-  progress.update(static_cast<std::int64_t>(all.size()), failed, true);
-  journal.sync();
-  return tally;
-}
+
+  MPI_Comm comm_;
+  const Config& c_;
+  const RunOptions& o_;
+  const RunSetup& s_;
+  const Groups& groups_;
+  JournalWriter& journal_;
+  std::vector<PointRecord>& local_;
+  const Todo todo_;
+  const std::int64_t total_;
+  FarmTally tally_;
+  std::size_t next_ = 0, next_group_ = 0;
+  int active_workers_;    // ranks that will still ask for single points
+  int active_leaders_;    // other groups' leaders
+  bool own_group_open_;   // group 0 still waits for distributed points
+  std::future<PointRecord> mine_now_;
+};
 
 // A worker's distributed phase, as the leader or a member of its rank group:
 // the leader asks rank 0 for a point and broadcasts it to the group, which
@@ -599,7 +638,7 @@ RunOutcome run_sweep(MPI_Comm comm, const Config& c, const RunOptions& o) {
   if (s.rank == 0) {
     // ---- coordinator (and a computing rank itself)
     JournalWriter journal = open_journal(s, resume);
-    const FarmTally tally = coordinate(comm, c, o, s, plan, resume, journal, local);
+    const FarmTally tally = Coordinator(comm, c, o, s, plan, resume, journal, local).run();
     write_final_coordinator(comm, o, s, resume, tally, journal, local, out);
   } else {
     // ---- worker: first the distributed phase (as a group leader or member)
