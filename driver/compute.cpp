@@ -27,12 +27,12 @@ std::int64_t dense_dim(const SweepSpec& s, std::int64_t L) {
 
 Method planned_method(const Config& c, const Point& p) {
   const SweepSpec& s = c.sweeps[static_cast<std::size_t>(p.sweep)];
-  const std::string& m = c.spectrum.method;
+  const SpectrumMethod m = c.spectrum.method;
   const bool ti = translation_invariant_spec(s) && p.boundary == Boundary::Periodic;
-  if (m == "bloch") return Method::Bloch;
-  if (m == "dense") return Method::Dense;
-  if (m == "krylov") return Method::Krylov;
-  if (m == "tangent") return Method::Tangent;
+  if (m == SpectrumMethod::Bloch) return Method::Bloch;
+  if (m == SpectrumMethod::Dense) return Method::Dense;
+  if (m == SpectrumMethod::Krylov) return Method::Krylov;
+  if (m == SpectrumMethod::Tangent) return Method::Tangent;
   if (s.redrawn) return Method::Tangent;
   if (ti) return Method::Bloch;
   if (dense_dim(s, p.L) <= c.spectrum.dense_max) return Method::Dense;
@@ -55,7 +55,7 @@ int ranks_per_point(const Config& c, const std::vector<Point>& points, int world
 std::vector<std::int64_t> region_cuts(const Config& c, const Point& p) {
   std::vector<std::int64_t> cuts;
   for (std::int64_t ell : c.bounds.regions)
-    cuts.push_back(block_cuts(p.L, p.boundary, c.bounds.placement == "edge", ell));
+    cuts.push_back(block_cuts(p.L, p.boundary, c.bounds.placement == Placement::Edge, ell));
   return cuts;
 }
 
@@ -77,13 +77,22 @@ double estimated_flops(const Config& c, const Point& p) {
 
 namespace {
 
+// spectrum.krylov.policy (its TOML spelling, checked by parse_config) as the
+// solver's enum: the one place where the driver reads it.
+KrylovPolicy krylov_policy(const std::string& toml) {
+  if (toml == "auto") return KrylovPolicy::Auto;
+  if (toml == "largest") return KrylovPolicy::Largest;
+  if (toml == "shift_invert") return KrylovPolicy::ShiftInvert;
+  throw std::logic_error("spectrum.krylov.policy \"" + toml + "\" (expected auto, largest or shift_invert)");
+}
+
 // Bounds from whatever top of the spectrum is known.
 void fill_bounds(PointRecord& r, const Config& c, const Point& p, const std::vector<double>& top, double lambda_max,
                  double ks_rate) {
   BoundsInput bi;
   bi.L = p.L;
   bi.boundary = p.boundary;
-  bi.edge = c.bounds.placement == "edge";
+  bi.edge = c.bounds.placement == Placement::Edge;
   bi.top = top;
   bi.lambda_max = lambda_max;
   bi.ks_rate = ks_rate;
@@ -151,11 +160,11 @@ PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, 
         ko.nev = static_cast<int>(S.krylov.count);
         ko.tol = S.krylov.tolerance;
         ko.max_it = static_cast<int>(S.krylov.max_restarts);
-        ko.policy = S.krylov.policy;
+        ko.policy = krylov_policy(S.krylov.policy);
         ko.cluster_tol = S.krylov.cluster_tolerance;
         const KrylovResult kr = krylov_top(group, gs, ko);
-        r.solver = static_cast<std::int32_t>(kr.method == "shift-invert" ? SolverCode::ShiftInvert
-                                                                         : SolverCode::KrylovSchur);
+        r.solver = static_cast<std::int32_t>(kr.method == KrylovMethod::ShiftInvert ? SolverCode::ShiftInvert
+                                                                                    : SolverCode::KrylovSchur);
         r.solver_converged = kr.converged;
         r.solver_iterations = kr.iterations;
         r.solver_residual = kr.max_residual;

@@ -220,7 +220,12 @@ Config parse_config(const std::string& text, const std::string& source) {
                                    "krylov", "tangent"});
     auto& S = c.spectrum;
     if (const toml::node* m = t.get("method")) {
-      S.method = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense", "krylov", "tangent"});
+      const std::string name = cx.choice(*m, "spectrum.method", {"auto", "bloch", "dense", "krylov", "tangent"});
+      S.method = name == "bloch"     ? SpectrumMethod::Bloch
+                 : name == "dense"   ? SpectrumMethod::Dense
+                 : name == "krylov"  ? SpectrumMethod::Krylov
+                 : name == "tangent" ? SpectrumMethod::Tangent
+                                     : SpectrumMethod::Auto;
       S.method_line = static_cast<std::int64_t>(m->source().begin.line);
     }
     auto positive = [&](const char* key, std::int64_t& out) {
@@ -294,7 +299,7 @@ Config parse_config(const std::string& text, const std::string& source) {
   // A forced method must apply to every point.
   for (const auto& s : c.sweeps) {
     const bool ti = !s.bond.drawn() && !s.site.drawn();
-    if (c.spectrum.method == "krylov" && s.redrawn)
+    if (c.spectrum.method == SpectrumMethod::Krylov && s.redrawn)
       cx.fail(c.spectrum.method_line, "spectrum.method",
               "\"krylov\" needs gates that repeat every period, but " + s.where + " redraws them (use \"tangent\")");
     // PETSc from Debian has 32-bit indices: the distributed matrix dimension
@@ -304,7 +309,7 @@ Config parse_config(const std::string& text, const std::string& source) {
       if ((pos ? L : 2 * L) >= (std::int64_t(1) << 31))
         cx.fail(s.sites_line, s.where + ".sites",
                 "L = " + std::to_string(L) + " gives a matrix dimension beyond 2^31 - 1, the limit of a 32-bit-index PETSc");
-    if (c.spectrum.method == "bloch") {
+    if (c.spectrum.method == SpectrumMethod::Bloch) {
       if (!ti)
         cx.fail(c.spectrum.method_line, "spectrum.method",
                 "\"bloch\" needs translation-invariant gates, but " + s.where + " draws gate parameters");
@@ -329,7 +334,8 @@ Config parse_config(const std::string& text, const std::string& source) {
       for (auto v : B.local_dims)
         if (v < 2) cx.fail(*n, "bounds.local_dims", "local dimension N = " + std::to_string(v) + " is below 2");
     }
-    if (const toml::node* p = t.get("placement")) B.placement = cx.choice(*p, "bounds.placement", {"bulk", "edge"});
+    if (const toml::node* p = t.get("placement"))
+      B.placement = cx.choice(*p, "bounds.placement", {"bulk", "edge"}) == "edge" ? Placement::Edge : Placement::Bulk;
   }
   for (const Diagnostic* d : diagnostics()) c.diagnostics.push_back(d->parse(text, source, c));
   return c;

@@ -58,7 +58,7 @@ struct KrylovSpec {
   std::int64_t count = 16;          // top exponents wanted
   double tolerance = 1e-12;         // relative residual
   std::int64_t max_restarts = 100;
-  std::string policy = "auto";      // auto | largest | shift_invert
+  std::string policy = "auto";      // auto | largest | shift_invert (KrylovPolicy where compute_point builds the options)
   double cluster_tolerance = 1e-6;  // exponent distance from lambda_max counted as one cluster
   std::int64_t ranks_per_point = 0;  // 0: automatic from the matrix dimension
 };
@@ -71,8 +71,12 @@ struct TangentSpec {
   std::int64_t windows = 20;
 };
 
+// spectrum.method: Auto picks per point (planned_method, driver/compute.cpp);
+// the others force that method on every point.
+enum class SpectrumMethod { Auto, Bloch, Dense, Krylov, Tangent };
+
 struct SpectrumSpec {
-  std::string method = "auto";  // auto | bloch | dense | krylov | tangent
+  SpectrumMethod method = SpectrumMethod::Auto;  // auto | bloch | dense | krylov | tangent
   KrylovSpec krylov;
   TangentSpec tangent;
   std::int64_t dense_max = 4096;  // largest matrix dimension for dense
@@ -83,10 +87,14 @@ struct SpectrumSpec {
   std::int64_t method_line = 0;
 };
 
+// bounds.placement: regions in the bulk (two cuts) or, on open chains, at an
+// end (one cut).
+enum class Placement { Bulk, Edge };
+
 struct BoundsSpec {
   std::vector<std::int64_t> regions = {1, 2, 4, 8};
   std::vector<std::int64_t> local_dims = {2, 3, 5, 7};
-  std::string placement = "bulk";  // bulk (two cuts) | edge (open chains: one cut)
+  Placement placement = Placement::Bulk;  // bulk (two cuts) | edge (open chains: one cut)
 };
 
 struct Config {

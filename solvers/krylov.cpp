@@ -207,7 +207,7 @@ struct StageSpec {
   double tol = 1e-12;
   int power = 1;
   std::string prefix;
-  std::string si_solver = "banded";
+  ShiftInvertSolver si_solver = ShiftInvertSolver::Banded;
   Mat custom = nullptr;  // f(A) to run on (largest magnitude), eigenpairs by Rayleigh-Ritz on A
   double target = 0.0;   // |target| for the diagnostics of a custom operator
 };
@@ -277,10 +277,10 @@ StageOut run_stage(const DistMatrix& A, const StageSpec& sp) {
     TORAL_PCALL(STGetKSP(st, &ksp));
     TORAL_PCALL(KSPSetType(ksp, KSPPREONLY));
     TORAL_PCALL(KSPGetPC(ksp, &pc));
-    if (sp.si_solver == "banded" && banded_applies(A)) {
+    if (sp.si_solver == ShiftInvertSolver::Banded && banded_applies(A)) {
       TORAL_PCALL(pc_set_banded(pc));
     } else {
-      if (sp.si_solver == "banded") out.info.method += " (mumps: too few rows per rank for banded)";
+      if (sp.si_solver == ShiftInvertSolver::Banded) out.info.method += " (mumps: too few rows per rank for banded)";
       TORAL_PCALL(PCSetType(pc, PCLU));
       TORAL_PCALL(PCFactorSetMatSolverType(pc, MATSOLVERMUMPS));
     }
@@ -528,8 +528,8 @@ OpOutcome shift_invert(Context& cx, const StageOut& ks, int nev) {
 
 OpOutcome solve_operator(Context& cx, int nev) {
   const KrylovOptions& o = cx.o;
-  const std::string& pol = o.policy;
-  if (pol == "shift_invert" || (pol == "auto" && cx.clean)) {
+  const KrylovPolicy pol = o.policy;
+  if (pol == KrylovPolicy::ShiftInvert || (pol == KrylovPolicy::Auto && cx.clean)) {
     // Short plain probe: directions and size of the top, outliers above a band.
     StageSpec sp = base_spec(o, nev);
     sp.method = "probe";
@@ -546,7 +546,7 @@ OpOutcome solve_operator(Context& cx, int nev) {
     r.eigs = ks.eigs;
     return r;
   }
-  if (pol == "largest") throw SolverError("Krylov-Schur did not converge: " + stage_summary(ks));
+  if (pol == KrylovPolicy::Largest) throw SolverError("Krylov-Schur did not converge: " + stage_summary(ks));
   return shift_invert(cx, ks, nev);
 }
 
@@ -569,11 +569,12 @@ KrylovResult krylov_top(MPI_Comm comm, const GateSource& g, const KrylovOptions&
   KrylovResult res;
   try {
     if (!slepc_ready()) throw SolverError("krylov_top: SlepcInitialize has not been called");
-    if (o.policy != "auto" && o.policy != "largest" && o.policy != "shift_invert")
-      throw InvalidInput("krylov_top: policy '" + o.policy +
-                                  "' (expected auto, largest or shift_invert)");
-    if (o.si_solver != "banded" && o.si_solver != "mumps")
-      throw InvalidInput("krylov_top: si_solver '" + o.si_solver + "' (expected banded or mumps)");
+    if (o.policy != KrylovPolicy::Auto && o.policy != KrylovPolicy::Largest && o.policy != KrylovPolicy::ShiftInvert)
+      throw InvalidInput("krylov_top: policy " + std::to_string(static_cast<int>(o.policy)) +
+                                  " (expected Auto, Largest or ShiftInvert)");
+    if (o.si_solver != ShiftInvertSolver::Banded && o.si_solver != ShiftInvertSolver::Mumps)
+      throw InvalidInput("krylov_top: si_solver " + std::to_string(static_cast<int>(o.si_solver)) +
+                                  " (expected Banded or Mumps)");
     if (o.nev < 1) throw InvalidInput("krylov_top: nev must be >= 1");
     if (o.power < 1 || o.power % 2 == 0)
       throw InvalidInput("krylov_top: power must be odd and >= 1 (an even power merges mu and -mu)");
@@ -584,14 +585,14 @@ KrylovResult krylov_top(MPI_Comm comm, const GateSource& g, const KrylovOptions&
           "krylov_top: gates are redrawn every period (time_periodic = false): there is no "
           "one-period eigenproblem; use tangent_top");
     const bool clean = g.translation_invariant;
-    if (clean && g.boundary == Boundary::Periodic && o.policy == "auto")
+    if (clean && g.boundary == Boundary::Periodic && o.policy == KrylovPolicy::Auto)
       throw InvalidInput(
           "krylov_top: clean periodic ring: its top is a near-continuum (Krylov-Schur does not "
           "converge); bloch_spectrum is exact there");
     const bool pos = g.position_class && !g.has_site_layer;
     double rho_bulk = 0.0;
     collective_phase(comm, [&] {
-      if (clean && o.policy != "largest") rho_bulk = bulk_radius(g, o.t);
+      if (clean && o.policy != KrylovPolicy::Largest) rho_bulk = bulk_radius(g, o.t);
     });
     Context cx{o, nullptr, {}, clean, rho_bulk, res.stages, res.iterations};
     const int K = o.nev;
@@ -649,7 +650,7 @@ KrylovResult krylov_top(MPI_Comm comm, const GateSource& g, const KrylovOptions&
       res.converged += static_cast<std::int64_t>(out.eigs.size());
       if (!out.warning.empty()) warnings.push_back(out.warning);
     }
-    res.method = used_si ? "shift-invert" : "krylov-schur";
+    res.method = used_si ? KrylovMethod::ShiftInvert : KrylovMethod::KrylovSchur;
     // Merge: exponents of S from every operator, with multiplicity.
     struct Item {
       double lam;

@@ -25,8 +25,8 @@
 //     On a layer operator A^power is one fused pass (layer_power_mult,
 //     layers.hpp), bit-identical to power products.
 //   Shift-invert: STSINVERT + KSPPREONLY + the distributed banded LU of
-//     banded.hpp (si_solver "banded", default) or PCLU + MATSOLVERMUMPS
-//     ("mumps"; measured ~1 us per elimination-tree node per solve on these
+//     banded.hpp (si_solver Banded, default) or PCLU + MATSOLVERMUMPS
+//     (Mumps; measured ~1 us per elimination-tree node per solve on these
 //     chain matrices, ~100x slower). Targets: every direction in which the
 //     preceding Krylov-Schur stage saw top eigenvalues: real targets
 //     +-rho (1 + offset) (rho the largest modulus seen, or the Bloch bulk edge
@@ -40,16 +40,16 @@
 //     not nearest sigma). Estimates of the top K that no target reached are
 //     reported as a warning in `message`.
 //
-// Policy (KrylovOptions::policy)
-//   "largest"       the Krylov-Schur stage only; not converged -> ok = false.
-//   "shift_invert"  a 3-restart plain Krylov-Schur probe (directions, size,
+// Policy (KrylovOptions::policy; spectrum.krylov.policy in the config)
+//   Largest         the Krylov-Schur stage only; not converged -> ok = false.
+//   ShiftInvert     a 3-restart plain Krylov-Schur probe (directions, size,
 //                   outliers), then shift-invert.
-//   "auto" (default) clean circuits (g.translation_invariant: the top is a
-//                   band edge) go to "shift_invert"; disordered ones run the
+//   Auto (default)  clean circuits (g.translation_invariant: the top is a
+//                   band edge) go to ShiftInvert; disordered ones run the
 //                   Krylov-Schur stage with max_it restarts and fall back to
 //                   shift-invert (seeded by its estimates) when fewer than the
 //                   requested values converged.
-//   Refused (ok = false): clean periodic rings in "auto" (near-continuum top;
+//   Refused (ok = false): clean periodic rings in Auto (near-continuum top;
 //   bloch_spectrum is exact there) and circuits with time_periodic == false
 //   (no one-period eigenproblem; use tangent_top).
 //
@@ -71,8 +71,8 @@
 // complex-target stages. options_prefix = "" gives plain -eps_* / -st_* for
 // the Krylov-Schur stage.
 //
-// Diagnostics per point: the method actually used ("krylov-schur" or
-// "shift-invert" when any operator needed it), converged count, iterations
+// Diagnostics per point: the method actually used (KrylovMethod: KrylovSchur,
+// or ShiftInvert when any operator needed it), converged count, iterations
 // (restarts, all stages and operators), the largest relative residual
 // ||A x - mu x|| / |mu| of the reported eigenpairs (explicit, on A), wall
 // time, per-stage records, and the cluster report: how many of the computed
@@ -99,14 +99,21 @@
 
 namespace toral {
 
+// spectrum.krylov.policy ("auto" | "largest" | "shift_invert"), see Policy above.
+enum class KrylovPolicy { Auto, Largest, ShiftInvert };
+// The LU of the shift-invert stages: the banded solver (banded.hpp) or MUMPS.
+enum class ShiftInvertSolver { Banded, Mumps };
+// The method a KrylovResult came from: ShiftInvert when any operator needed it.
+enum class KrylovMethod { KrylovSchur, ShiftInvert };
+
 struct KrylovOptions {
   int nev = 6;              // K: top exponents of S wanted
   double tol = 1e-12;       // relative residual ||A x - mu x|| / |mu|
   int max_it = 100;         // restart budget of every EPS solve
-  std::string policy = "auto";  // "auto" | "largest" | "shift_invert"
+  KrylovPolicy policy = KrylovPolicy::Auto;
   double cluster_tol = 1e-6;    // exponent distance from lambda_max counted as cluster
   int power = 5;            // Krylov-Schur stage runs on A^power (odd; 1 = plain A)
-  std::string si_solver = "banded";  // LU of the shift-invert stage: "banded" | "mumps"
+  ShiftInvertSolver si_solver = ShiftInvertSolver::Banded;  // LU of the shift-invert stages
   double si_offset = 0.0;  // sigma = s rho (1 + si_offset); 0: 1e-8 clean, 1e-3 otherwise
   std::string options_prefix = "toral_";
   std::int64_t t = 0;       // period whose operator is solved (time-periodic: any)
@@ -126,7 +133,7 @@ struct KrylovStage {
 struct KrylovResult {
   bool ok = false;
   std::string message;
-  std::string method;       // "krylov-schur" or "shift-invert" (any operator used SI)
+  KrylovMethod method = KrylovMethod::KrylovSchur;  // ShiftInvert: any operator used SI
   std::vector<double> exponents;  // top K exponents of S, descending (positive half)
   std::vector<std::complex<double>> eigenvalues;  // the eigenvalue of S behind each exponent
   std::vector<std::string> source;                // operator it came from: "S", "M" or "M^-1"

@@ -2,6 +2,8 @@
 // streams that depend only on (seed, point, bond).
 #include <gtest/gtest.h>
 
+#include <utility>
+
 #include "config.hpp"
 #include "entangle.hpp"
 #include "default_config.hpp"
@@ -151,6 +153,34 @@ matrix = [[1,1],[0,1]]
 method = "bloch"
 )", {"t.toml:7", "periodic"});
   expect_error("title = 3\n", {"t.toml:1", "title", "must be a string"});
+}
+
+// Config choices are parsed once, into enums (config.hpp); a bad spelling is a
+// located error listing the allowed ones. (Source: this project's
+// docs/config.md, which names the TOML spellings.)
+TEST(Config, ChoicesParseToEnums) {
+  const Config def = parse_config(kBase, "t.toml");
+  EXPECT_EQ(def.spectrum.method, SpectrumMethod::Auto);
+  EXPECT_EQ(def.bounds.placement, Placement::Bulk);
+  const std::pair<const char*, SpectrumMethod> methods[] = {{"auto", SpectrumMethod::Auto},
+                                                            {"dense", SpectrumMethod::Dense},
+                                                            {"krylov", SpectrumMethod::Krylov},
+                                                            {"tangent", SpectrumMethod::Tangent}};
+  for (const auto& [name, m] : methods) {
+    const Config c = parse_config(std::string(kBase) + "[spectrum]\nmethod = \"" + name + "\"\n", "t.toml");
+    EXPECT_EQ(c.spectrum.method, m) << name;
+    EXPECT_EQ(c.spectrum.method_line, 9) << name;
+  }
+  for (const auto& [name, pl] : {std::pair{"bulk", Placement::Bulk}, std::pair{"edge", Placement::Edge}}) {
+    const Config c = parse_config(std::string(kBase) + "[bounds]\nplacement = \"" + name + "\"\n", "t.toml");
+    EXPECT_EQ(c.bounds.placement, pl) << name;
+  }
+  expect_error(std::string(kBase) + "[spectrum]\nmethod = \"qr\"\n",
+               {"t.toml:9", "spectrum.method", "\"qr\" is not one of \"auto\", \"bloch\", \"dense\", \"krylov\", \"tangent\""});
+  expect_error(std::string(kBase) + "[spectrum.krylov]\npolicy = \"smallest\"\n",
+               {"t.toml:9", "spectrum.krylov.policy", "\"smallest\" is not one of \"auto\", \"largest\", \"shift_invert\""});
+  expect_error(std::string(kBase) + "[bounds]\nplacement = \"middle\"\n",
+               {"t.toml:9", "bounds.placement", "\"middle\" is not one of \"bulk\", \"edge\""});
 }
 
 TEST(Config, OverflowingFamilyRangeIsRejected) {

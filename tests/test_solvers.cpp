@@ -15,6 +15,7 @@
 #include <functional>
 #include <limits>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "assemble.hpp"
@@ -374,7 +375,7 @@ TEST(Krylov, DisorderedMatchesDense) {
       o.power = power;
       const KrylovResult r = krylov_top(MPI_COMM_WORLD, c.g, o);
       expect_top(r, ref, 1e-9, c.name + " power " + std::to_string(power));
-      EXPECT_EQ(r.method, "krylov-schur") << c.name;
+      EXPECT_EQ(r.method, KrylovMethod::KrylovSchur) << c.name;
       EXPECT_GE(r.converged, c.K);
       EXPECT_GT(r.iterations, 0);
       EXPECT_GT(r.wall_seconds, 0.0);
@@ -395,14 +396,15 @@ TEST(Krylov, ShiftInvertMatchesDense) {
   const GateSource sring = disordered(Kind::Symplectic, 40, Boundary::Periodic, 23);
   const GateSource site = disordered(Kind::SiteLayer, 41, Boundary::Open, 24);
   for (const GateSource* g : {&ring, &chain, &sring, &site})
-    for (const char* solver : {"banded", "mumps"}) {
+    for (const auto& [solver, name] : {std::pair{ShiftInvertSolver::Banded, "banded"},
+                                        std::pair{ShiftInvertSolver::Mumps, "mumps"}}) {
       KrylovOptions o;
       o.nev = 4;
-      o.policy = "shift_invert";
+      o.policy = KrylovPolicy::ShiftInvert;
       o.si_solver = solver;
       const KrylovResult r = krylov_top(MPI_COMM_WORLD, *g, o);
-      expect_top(r, dense_top(*g, 4), 1e-9, std::string("shift-invert ") + solver);
-      EXPECT_EQ(r.method, "shift-invert");
+      expect_top(r, dense_top(*g, 4), 1e-9, std::string("shift-invert ") + name);
+      EXPECT_EQ(r.method, KrylovMethod::ShiftInvert);
     }
 }
 
@@ -419,7 +421,7 @@ TEST(Krylov, CleanOpenChainClusterShiftInvert) {
   o.cluster_tol = 1e-3;
   const KrylovResult r = krylov_top(MPI_COMM_WORLD, g, o);
   expect_top(r, dense_top(g, 6), 1e-9, "clean open chain");
-  EXPECT_EQ(r.method, "shift-invert");
+  EXPECT_EQ(r.method, KrylovMethod::ShiftInvert);
   EXPECT_TRUE(r.clustered) << r.message;
   EXPECT_GE(r.cluster_count, 2);
   EXPECT_LE(r.cluster_spread, o.cluster_tol);
@@ -451,7 +453,7 @@ TEST(Krylov, CleanOpenChainDenseClusterL1e5) {
   const KrylovResult r = krylov_top(MPI_COMM_WORLD, g, o);
   ASSERT_TRUE(r.ok) << r.message;
   ASSERT_EQ(r.exponents.size(), 12u);
-  EXPECT_EQ(r.method, "shift-invert");
+  EXPECT_EQ(r.method, KrylovMethod::ShiftInvert);
   for (int j = 0; j < 6; ++j) {
     EXPECT_NEAR(r.exponents[static_cast<std::size_t>(2 * j)], ref[j], 1e-10) << "j=" << j;
     EXPECT_NEAR(r.exponents[static_cast<std::size_t>(2 * j + 1)], ref[j], 1e-10) << "j=" << j;
@@ -472,7 +474,7 @@ TEST(Krylov, CleanRingMatchesBloch) {
   const Spectrum b = bloch_spectrum(materialize(g));
   KrylovOptions o;
   o.nev = 1;
-  o.policy = "shift_invert";
+  o.policy = KrylovPolicy::ShiftInvert;
   const KrylovResult r = krylov_top(MPI_COMM_WORLD, g, o);
   ASSERT_TRUE(r.ok) << r.message;
   EXPECT_NEAR(r.exponents[0], b.exponents[0], 1e-9);
@@ -500,12 +502,13 @@ TEST(Krylov, TinyLattices) {
       {disordered(Kind::SiteLayer, 3, Boundary::Open, 53, false, true), 3, 1e-9},
   };
   for (const auto& c : cases)
-    for (const char* policy : {"auto", "shift_invert"}) {
+    for (const auto& [policy, name] : {std::pair{KrylovPolicy::Auto, "auto"},
+                                        std::pair{KrylovPolicy::ShiftInvert, "shift_invert"}}) {
       KrylovOptions o;
       o.nev = c.K;
       o.policy = policy;
       const KrylovResult r = krylov_top(MPI_COMM_WORLD, c.g, o);
-      const std::string what = "L=" + std::to_string(c.g.L) + " " + policy;
+      const std::string what = "L=" + std::to_string(c.g.L) + " " + name;
       ASSERT_TRUE(r.ok) << what << ": " << r.message;
       const std::vector<double> ref = dense_top(c.g, c.K);
       ASSERT_EQ(r.exponents.size(), ref.size());
@@ -522,7 +525,7 @@ TEST(Krylov, OptionsDatabaseOverrides) {
   const GateSource g = disordered(Kind::Position, 200, Boundary::Periodic, 11);
   KrylovOptions o;
   o.nev = 8;
-  o.policy = "largest";
+  o.policy = KrylovPolicy::Largest;
   ASSERT_TRUE(krylov_top(MPI_COMM_WORLD, g, o).ok);
   PetscOptionsSetValue(nullptr, "-toral_eps_max_it", "1");
   const KrylovResult r = krylov_top(MPI_COMM_WORLD, g, o);
@@ -620,12 +623,12 @@ TEST(Failures, ReportedNotThrown) {
   const GateSource chain = clean(m2(2, 1, 1, 1), 2000, Boundary::Open);
   KrylovOptions o;
   o.nev = 6;
-  o.policy = "largest";
+  o.policy = KrylovPolicy::Largest;
   o.max_it = 1;
   KrylovResult r = krylov_top(MPI_COMM_WORLD, chain, o);
   EXPECT_FALSE(r.ok);
   EXPECT_NE(r.message.find("did not converge"), std::string::npos) << r.message;
-  o.policy = "auto";
+  o.policy = KrylovPolicy::Auto;
   o.tol = 1e-18;  // below rounding: no stage can converge
   r = krylov_top(MPI_COMM_WORLD, chain, o);
   EXPECT_FALSE(r.ok);
