@@ -134,142 +134,169 @@ PointFailure point_failure(const std::exception& e) {
   return {PointStatus::InternalError, std::string("internal error (please report): ") + e.what()};
 }
 
+namespace {
+
+void set_failure(PointRecord& r, PointStatus st, const std::string& msg) {
+  r.status = static_cast<std::int32_t>(st);
+  r.message = msg;
+}
+
+// The top exponents of a distributed method and their errors.
+struct Top {
+  std::vector<double> exponents, errors;
+};
+
+// Krylov-Schur / shift-and-invert on the rank group (solvers/krylov.hpp).
+Top krylov_spectrum(const Config& c, const GateSource& gs, MPI_Comm group, PointRecord& r) {
+  const SpectrumSpec& S = c.spectrum;
+  KrylovOptions ko;
+  ko.nev = static_cast<int>(S.krylov.count);
+  ko.tol = S.krylov.tolerance;
+  ko.max_it = static_cast<int>(S.krylov.max_restarts);
+  ko.policy = krylov_policy(S.krylov.policy);
+  ko.cluster_tol = S.krylov.cluster_tolerance;
+  const KrylovResult kr = krylov_top(group, gs, ko);
+  r.solver = static_cast<std::int32_t>(kr.method == KrylovMethod::ShiftInvert ? SolverCode::ShiftInvert
+                                                                              : SolverCode::KrylovSchur);
+  r.solver_converged = kr.converged;
+  r.solver_iterations = kr.iterations;
+  r.solver_residual = kr.max_residual;
+  r.solver_time = kr.wall_seconds;
+  r.cluster_count = kr.cluster_count;
+  r.cluster_spread = kr.cluster_spread;
+  if (!kr.ok) throw SolverError("krylov: " + kr.message);
+  return {kr.exponents, kr.residuals};  // first order: a relative residual r moves ln|mu| by about r
+}
+
+// The QR (Benettin) method on the rank group (solvers/tangent.hpp).
+Top tangent_spectrum(const Config& c, const Point& p, const GateSource& gs, MPI_Comm group, PointRecord& r) {
+  const SpectrumSpec& S = c.spectrum;
+  TangentOptions to;
+  to.k = static_cast<int>(S.tangent.count);
+  to.periods = S.tangent.periods;
+  to.transient = S.tangent.transient;
+  to.windows = static_cast<int>(S.tangent.windows);
+  to.seed = p.seed >= 0 ? static_cast<std::uint64_t>(p.seed) : 0;
+  const TangentResult tr = tangent_top(group, gs, to);
+  r.solver = static_cast<std::int32_t>(SolverCode::Tangent);
+  r.solver_converged = static_cast<std::int64_t>(tr.exponents.size());
+  r.solver_iterations = tr.periods;
+  r.solver_time = tr.wall_seconds;
+  if (!tr.ok) throw SolverError("tangent: " + tr.message);
+  return {tr.exponents, tr.errors};
+}
+
+// A record from the top exponents only: no KS rate, no histogram
+// (docs/model.md).
+void fill_top(const Config& c, const Point& p, const Top& top, PointRecord& r) {
+  r.lambda_max = top.exponents.empty() ? kNaN : top.exponents.front();
+  r.exponents = top.exponents;
+  r.exponent_errors = top.errors;
+  r.error_bound = 0.0;
+  for (double e : top.errors) r.error_bound = std::max(r.error_bound, e);
+  fill_bounds(r, c, p, top.exponents, r.lambda_max, kNaN);
+}
+
+// Why method m cannot solve the materialised circuit ("" when it can).
+std::string no_method_reason(const Config& c, const GateSource& gs, const Circuit& circ, Method m) {
+  const std::int64_t dim = circ.position_class() ? circ.L : 2 * circ.L;
+  if (m != Method::Bloch && m != Method::Dense) return std::string("no single-rank method planned (") + method_name(m) + ")";
+  if (m == Method::Bloch && !(circ.translation_invariant() && circ.boundary == Boundary::Periodic))
+    return "bloch needs a translation-invariant periodic circuit";
+  if (m == Method::Dense && dim > c.spectrum.dense_max)
+    return "matrix dimension " + std::to_string(dim) + " exceeds spectrum.dense_max = " +
+           std::to_string(c.spectrum.dense_max);
+  if (!gs.time_periodic) return "gates redrawn every period have no one-period spectrum; use the tangent method";
+  return {};
+}
+
+// The whole spectrum on this rank: Bloch blocks or dense LAPACK, with the
+// summary, the top cluster and the bounds.
+void full_spectrum(const Config& c, const Point& p, const GateSource& gs, Method m, PointRecord& r) {
+  const Circuit circ = materialize(gs);
+  circ.validate();
+  const std::string why = no_method_reason(c, gs, circ, m);
+  if (!why.empty()) {
+    r.method = 0;
+    set_failure(r, PointStatus::NoMethod, "no spectrum method: " + why);
+    return;
+  }
+  const auto ts = std::chrono::steady_clock::now();
+  const Spectrum sp = m == Method::Bloch ? bloch_spectrum(circ) : dense_spectrum(circ, c.spectrum.certify_max);
+  r.solver_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - ts).count();
+  r.solver = static_cast<std::int32_t>(m == Method::Bloch ? SolverCode::BlochExact : SolverCode::Lapack);
+  r.solver_converged = static_cast<std::int64_t>(sp.exponents.size());
+  r.solver_ranks = 1;
+  const ChaosSummary cs = summarize(sp, circ.L, c.spectrum.summary);
+  for (std::size_t i = 0; i < cs.kept.size(); ++i)
+    r.exponent_errors.push_back(sp.errors.size() == sp.exponents.size() ? sp.errors[i] : sp.error_bound);
+  // The top cluster: exponents within the tolerance of lambda_max.
+  const double ctol = kClusterTolerance * std::max(1.0, std::fabs(cs.lambda_max));
+  r.cluster_count = 0;
+  double lowest = cs.lambda_max;
+  for (double x : sp.exponents) {
+    if (cs.lambda_max - x > ctol) break;
+    ++r.cluster_count;
+    lowest = x;
+  }
+  r.cluster_spread = cs.lambda_max - lowest;
+  r.lambda_max = cs.lambda_max;
+  r.ks_rate = cs.ks_rate;
+  r.ks_density = cs.ks_density;
+  r.unstable_count = cs.unstable_count;
+  r.zero_count = cs.zero_count;
+  r.zero_certified = static_cast<std::int64_t>(sp.zero_rule);
+  r.exponents = cs.kept;
+  if (!sp.warning.empty()) set_failure(r, PointStatus::Inaccurate, "spectrum: " + sp.warning);
+  r.pairing_defect = sp.pairing_defect;
+  r.sum_defect = sp.sum_defect;
+  r.error_bound = sp.error_bound;
+  r.hist_counts = cs.hist_counts;
+  r.hist_edges = cs.hist_edges;
+  fill_bounds(r, c, p, sp.exponents, cs.lambda_max, cs.ks_rate);
+}
+
+// The bulk limit L -> infinity: it depends on the gates only, so a two-site
+// ring carries them.
+void fill_bulk_limit(const Config& c, const GateSource& gs, PointRecord& r) {
+  GateSource cell = gs;
+  cell.L = 2;
+  cell.boundary = Boundary::Periodic;
+  const BulkLimit bl = bulk_limit(materialize(cell), c.spectrum.summary.bins);
+  r.limit_lambda_max = bl.lambda_max;
+  r.limit_ks_density = bl.ks_density;
+  r.limit_accuracy = std::max(bl.accuracy, bl.hist_accuracy);
+  r.limit_hist_counts = bl.hist_counts;
+  r.limit_hist_edges = bl.hist_edges;
+}
+
+}  // namespace
+
+// One point: the spectrum by its planned method (distributed ones give the
+// top exponents only), the bulk limit, the accuracy check, then the
+// diagnostics. A failure becomes the record's status (point_failure).
 PointRecord compute_point(const Config& c, const ParamTable& t, const Point& p, MPI_Comm group) {
   const auto t0 = std::chrono::steady_clock::now();
   PointRecord r;
   r.index = p.index;
   r.params = param_values(c, t, p);
   r.cuts = region_cuts(c, p);
-  auto fail = [&](PointStatus st, const std::string& msg) {
-    r.status = static_cast<std::int32_t>(st);
-    r.message = msg;
-  };
   try {
-    const GateSource gs = gate_source(c, p);
+    const GateSource gs = gate_source(c, p);  // large lattices: gates on demand, never a full Circuit on one rank
     const Method m = planned_method(c, p);
     r.method = static_cast<std::int32_t>(m);
     int group_size = 1;
     MPI_Comm_size(group, &group_size);
     r.solver_ranks = group_size;
-    if (distributed_method(m)) {
-      // Large lattices: gates on demand, never a full Circuit on one rank.
-      const SpectrumSpec& S = c.spectrum;
-      std::vector<double> top, err;
-      if (m == Method::Krylov) {
-        KrylovOptions ko;
-        ko.nev = static_cast<int>(S.krylov.count);
-        ko.tol = S.krylov.tolerance;
-        ko.max_it = static_cast<int>(S.krylov.max_restarts);
-        ko.policy = krylov_policy(S.krylov.policy);
-        ko.cluster_tol = S.krylov.cluster_tolerance;
-        const KrylovResult kr = krylov_top(group, gs, ko);
-        r.solver = static_cast<std::int32_t>(kr.method == KrylovMethod::ShiftInvert ? SolverCode::ShiftInvert
-                                                                                    : SolverCode::KrylovSchur);
-        r.solver_converged = kr.converged;
-        r.solver_iterations = kr.iterations;
-        r.solver_residual = kr.max_residual;
-        r.solver_time = kr.wall_seconds;
-        r.cluster_count = kr.cluster_count;
-        r.cluster_spread = kr.cluster_spread;
-        if (!kr.ok) throw SolverError("krylov: " + kr.message);
-        top = kr.exponents;
-        err = kr.residuals;  // first order: a relative residual r moves ln|mu| by about r
-      } else {
-        TangentOptions to;
-        to.k = static_cast<int>(S.tangent.count);
-        to.periods = S.tangent.periods;
-        to.transient = S.tangent.transient;
-        to.windows = static_cast<int>(S.tangent.windows);
-        to.seed = p.seed >= 0 ? static_cast<std::uint64_t>(p.seed) : 0;
-        const TangentResult tr = tangent_top(group, gs, to);
-        r.solver = static_cast<std::int32_t>(SolverCode::Tangent);
-        r.solver_converged = static_cast<std::int64_t>(tr.exponents.size());
-        r.solver_iterations = tr.periods;
-        r.solver_time = tr.wall_seconds;
-        if (!tr.ok) throw SolverError("tangent: " + tr.message);
-        top = tr.exponents;
-        err = tr.errors;
-      }
-      r.lambda_max = top.empty() ? kNaN : top.front();
-      r.exponents = top;
-      r.exponent_errors = err;
-      r.error_bound = 0.0;
-      for (double e : err) r.error_bound = std::max(r.error_bound, e);
-      // Only the top is known: no KS rate, no histogram (docs/model.md).
-      fill_bounds(r, c, p, top, r.lambda_max, kNaN);
-    } else {
-    const Circuit circ = materialize(gs);
-    circ.validate();
-    std::string why;
-    Method use = m;
-    const std::int64_t dim = circ.position_class() ? circ.L : 2 * circ.L;
-    if (m == Method::Bloch && !(circ.translation_invariant() && circ.boundary == Boundary::Periodic)) {
-      use = Method::None;
-      why = "bloch needs a translation-invariant periodic circuit";
-    } else if (m == Method::Dense && dim > c.spectrum.dense_max) {
-      use = Method::None;
-      why = "matrix dimension " + std::to_string(dim) + " exceeds spectrum.dense_max = " +
-            std::to_string(c.spectrum.dense_max);
-    } else if (!gs.time_periodic) {
-      use = Method::None;
-      why = "gates redrawn every period have no one-period spectrum; use the tangent method";
-    }
-    if (use == Method::None) {
-      r.method = 0;
-      fail(PointStatus::NoMethod, "no spectrum method: " + why);
-    } else {
-      const auto ts = std::chrono::steady_clock::now();
-      const Spectrum sp =
-          m == Method::Bloch ? bloch_spectrum(circ) : dense_spectrum(circ, c.spectrum.certify_max);
-      r.solver_time = std::chrono::duration<double>(std::chrono::steady_clock::now() - ts).count();
-      r.solver = static_cast<std::int32_t>(m == Method::Bloch ? SolverCode::BlochExact : SolverCode::Lapack);
-      r.solver_converged = static_cast<std::int64_t>(sp.exponents.size());
-      r.solver_ranks = 1;
-      const ChaosSummary cs = summarize(sp, circ.L, c.spectrum.summary);
-      for (std::size_t i = 0; i < cs.kept.size(); ++i)
-        r.exponent_errors.push_back(sp.errors.size() == sp.exponents.size() ? sp.errors[i] : sp.error_bound);
-      // The top cluster: exponents within the tolerance of lambda_max.
-      const double ctol = kClusterTolerance * std::max(1.0, std::fabs(cs.lambda_max));
-      r.cluster_count = 0;
-      double lowest = cs.lambda_max;
-      for (double x : sp.exponents) {
-        if (cs.lambda_max - x > ctol) break;
-        ++r.cluster_count;
-        lowest = x;
-      }
-      r.cluster_spread = cs.lambda_max - lowest;
-      r.lambda_max = cs.lambda_max;
-      r.ks_rate = cs.ks_rate;
-      r.ks_density = cs.ks_density;
-      r.unstable_count = cs.unstable_count;
-      r.zero_count = cs.zero_count;
-      r.zero_certified = static_cast<std::int64_t>(sp.zero_rule);
-      r.exponents = cs.kept;
-      if (!sp.warning.empty()) fail(PointStatus::Inaccurate, "spectrum: " + sp.warning);
-      r.pairing_defect = sp.pairing_defect;
-      r.sum_defect = sp.sum_defect;
-      r.error_bound = sp.error_bound;
-      r.hist_counts = cs.hist_counts;
-      r.hist_edges = cs.hist_edges;
-      fill_bounds(r, c, p, sp.exponents, cs.lambda_max, cs.ks_rate);
-    }
-    }
-    if (c.spectrum.bulk_limit && gs.translation_invariant && gs.time_periodic) {
-      // The bulk limit depends on the gates only: a two-site ring carries them.
-      GateSource cell = gs;
-      cell.L = 2;
-      cell.boundary = Boundary::Periodic;
-      const BulkLimit bl = bulk_limit(materialize(cell), c.spectrum.summary.bins);
-      r.limit_lambda_max = bl.lambda_max;
-      r.limit_ks_density = bl.ks_density;
-      r.limit_accuracy = std::max(bl.accuracy, bl.hist_accuracy);
-      r.limit_hist_counts = bl.hist_counts;
-      r.limit_hist_edges = bl.hist_edges;
-    }
-    check_accuracy(r, c.spectrum.max_error, fail);
+    if (m == Method::Krylov) fill_top(c, p, krylov_spectrum(c, gs, group, r), r);
+    else if (m == Method::Tangent) fill_top(c, p, tangent_spectrum(c, p, gs, group, r), r);
+    else full_spectrum(c, p, gs, m, r);
+    if (c.spectrum.bulk_limit && gs.translation_invariant && gs.time_periodic) fill_bulk_limit(c, gs, r);
+    check_accuracy(r, c.spectrum.max_error,
+                   [&](PointStatus st, const std::string& msg) { set_failure(r, st, msg); });
   } catch (const std::exception& e) {
     const PointFailure pf = point_failure(e);
-    fail(pf.status, pf.message);
+    set_failure(r, pf.status, pf.message);
   }
   // The diagnostics (driver/diagnostics.cpp) after the spectrum: they read
   // the exponents and the bounds.
