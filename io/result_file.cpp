@@ -1,6 +1,5 @@
 #include "result_file.hpp"
 
-#include <fcntl.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -14,10 +13,9 @@
 #include <map>
 #include <set>
 #include <numeric>
-#include <random>
-#include <sstream>
 #include <type_traits>
 
+#include "atomic_file.hpp"
 #include "h5.hpp"
 
 #ifndef TORAL_VERSION
@@ -77,8 +75,11 @@ void bcast(MPI_Comm c, std::vector<std::uint64_t>& v) { bcast_numbers(c, v, MPI_
 void bcast(MPI_Comm c, std::int64_t& x) { MPI_Bcast(&x, 1, MPI_INT64_T, 0, c); }
 void bcast(MPI_Comm c, int& x) { MPI_Bcast(&x, 1, MPI_INT, 0, c); }
 
-// Error kinds agreed between ranks.
-enum : int { kOk = 0, kExists = 1, kOther = 2 };
+// Error kinds agreed between ranks (those of the target checks,
+// atomic_file.hpp).
+using atomic_file::kExists;
+using atomic_file::kOk;
+using atomic_file::kOther;
 
 [[noreturn]] void raise(int kind, const std::string& msg) {
   if (kind == kExists) throw OutputExistsError(msg);
@@ -103,68 +104,6 @@ void agree(MPI_Comm c, int kind, const std::string& msg) {
 }
 
 // ---------------------------------------------------------------- checks
-
-// Rank-0-local check of the output target; returns (kind, message).
-std::pair<int, std::string> target_problem(const std::string& path, bool overwrite) {
-  if (path.empty()) return {kOther, "output path is empty"};
-  std::error_code ec;
-  const fs::path p(path);
-  fs::path dir = p.parent_path();
-  if (dir.empty()) dir = ".";
-  if (!fs::is_directory(dir, ec))
-    return {kOther, "output directory '" + dir.string() + "' of '" + path + "' does not exist"};
-  if (::access(dir.c_str(), W_OK | X_OK) != 0)
-    return {kOther, "output directory '" + dir.string() + "' of '" + path + "' is not writable"};
-  const fs::file_status st = fs::symlink_status(p, ec);
-  if (fs::exists(st) || fs::is_symlink(st)) {
-    if (fs::is_directory(fs::status(p, ec)))
-      return {kOther, "output path '" + path + "' is a directory"};
-    if (!overwrite)
-      return {kExists, "output file '" + path +
-                           "' already exists; refusing to overwrite it (pass --overwrite to "
-                           "replace it)"};
-  }
-  return {kOk, {}};
-}
-
-std::string temp_name(const std::string& path) {
-  std::random_device rd;
-  std::ostringstream s;
-  s << path << ".partial." << ::getpid() << "." << std::hex << (rd() & 0xffffffu);
-  return s.str();
-}
-
-// Moves tmp onto path. Without overwrite, never replaces an existing file.
-std::pair<int, std::string> publish(const std::string& tmp, const std::string& path,
-                                    bool overwrite) {
-  auto sys = [&](const char* what) {
-    return std::string(what) + " '" + tmp + "' -> '" + path + "' failed: " + std::strerror(errno);
-  };
-  auto exists_msg = [&] {
-    return "output file '" + path +
-           "' appeared while the run was writing; refusing to overwrite it (pass --overwrite to "
-           "replace it)";
-  };
-  if (overwrite) {
-    if (std::rename(tmp.c_str(), path.c_str()) != 0) return {kOther, sys("rename")};
-    return {kOk, {}};
-  }
-  if (::renameat2(AT_FDCWD, tmp.c_str(), AT_FDCWD, path.c_str(), RENAME_NOREPLACE) == 0)
-    return {kOk, {}};
-  if (errno == EEXIST) return {kExists, exists_msg()};
-  if (errno != EINVAL && errno != ENOSYS && errno != ENOTSUP && errno != EPERM)
-    return {kOther, sys("rename")};
-  // The file system lacks RENAME_NOREPLACE: a hard link is also atomic.
-  if (::link(tmp.c_str(), path.c_str()) == 0) {
-    ::unlink(tmp.c_str());
-    return {kOk, {}};
-  }
-  if (errno == EEXIST) return {kExists, exists_msg()};
-  // No hard links either: check, then rename (a small race remains).
-  if (output_exists(path)) return {kExists, exists_msg()};
-  if (std::rename(tmp.c_str(), path.c_str()) != 0) return {kOther, sys("rename")};
-  return {kOk, {}};
-}
 
 // The row a record goes to.
 std::int64_t row_of(const PointRecord& r) { return r.row == -1 ? r.index : r.row; }
@@ -1009,15 +948,9 @@ std::string iso8601_utc_now() {
   return buf;
 }
 
-bool output_exists(const std::string& path) {
-  std::error_code ec;
-  const fs::file_status st = fs::symlink_status(path, ec);
-  return fs::exists(st) || fs::is_symlink(st);
-}
-
 void check_output_target(MPI_Comm comm, const std::string& path, bool overwrite) {
   std::pair<int, std::string> p{kOk, {}};
-  if (comm_rank(comm) == 0) p = target_problem(path, overwrite);
+  if (comm_rank(comm) == 0) p = atomic_file::target_problem(path, overwrite);
   bcast(comm, p.first);
   bcast(comm, p.second);
   if (p.first != kOk) raise(p.first, p.second);
@@ -1139,7 +1072,7 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   MPI_Allreduce(&kmine, &K, 1, MPI_UNSIGNED_LONG_LONG, MPI_MAX, comm);
 
   std::string tmp;
-  if (rank == 0) tmp = temp_name(where);
+  if (rank == 0) tmp = atomic_file::temp_name(where);
   bcast(comm, tmp);
 
   std::string err;
@@ -1160,7 +1093,7 @@ void write_results(MPI_Comm comm, const std::string& path, bool overwrite, const
   }
   std::pair<int, std::string> pub{kOk, {}};
   if (rank == 0) {
-    pub = publish(tmp, where, overwrite);
+    pub = atomic_file::publish(tmp, where, overwrite);
     if (pub.first != kOk) std::remove(tmp.c_str());
   }
   bcast(comm, pub.first);
