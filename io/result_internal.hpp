@@ -1,7 +1,6 @@
 // Declarations shared by the pieces of the result file code (internal to
 // io/, not part of the public io/result_file.hpp): result_validate.cpp
-// (validation of records and stats) and result_file.cpp (the writer and
-// the reader).
+// (validation of records and stats) and result_file.cpp (the writer).
 #pragma once
 #include <cstdint>
 #include <string>
