@@ -1,6 +1,7 @@
 // Declarations shared by the pieces of the result file code (internal to
 // io/, not part of the public io/result_file.hpp): result_validate.cpp
-// (validation of records and stats) and result_file.cpp (the writer).
+// (validation of records and stats) and result_write.cpp (the writer and
+// write_results).
 #pragma once
 #include <cstdint>
 #include <string>
