@@ -6,13 +6,12 @@
 
 #include <bit>
 #include <cerrno>
-#include <cstdio>
 #include <cstring>
 #include <filesystem>
 #include <fstream>
-#include <random>
-#include <sstream>
 #include <utility>
+
+#include "atomic_file.hpp"
 
 namespace toral {
 
@@ -20,12 +19,14 @@ namespace {
 
 // Every field of PointRecord is serialised by visit() below, in declaration
 // order. A new field must be added there (and kJournalVersion bumped, and
-// io/result_file.cpp taught to write and read it); this assertion fires on
-// the reference platform when PointRecord changes size, as a reminder.
+// io/result_write.cpp and io/result_read.cpp taught to write and read it);
+// this assertion fires on the reference platform when PointRecord changes
+// size, as a reminder.
 #if defined(__GLIBCXX__) && defined(__x86_64__) && defined(__linux__)
 static_assert(sizeof(PointRecord) == 592,
               "PointRecord changed: update visit() in io/journal.cpp (and bump kJournalVersion), "
-              "io/result_file.cpp (writer and read_results) and docs/layout.md, then this size");
+              "io/result_write.cpp (writer), io/result_read.cpp (read_results) and docs/layout.md, "
+              "then this size");
 #endif
 
 constexpr char kMagic[8] = {'T', 'O', 'R', 'A', 'L', 'J', 'N', 'L'};
@@ -386,10 +387,7 @@ void JournalWriter::open_new(const std::string& path, const std::string& config_
   reset();
   // The header goes to a sibling temporary that replaces `path` atomically:
   // a crash leaves either the old file or a journal with a whole header.
-  std::random_device rd;
-  std::ostringstream t;
-  t << path << ".new." << ::getpid() << "." << std::hex << (rd() & 0xffffffu);
-  const std::string tmp = t.str();
+  const std::string tmp = atomic_file::temp_name(path, "new");
   const int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_EXCL | O_APPEND | O_CLOEXEC, 0644);
   if (fd < 0) fail_errno(what, tmp, "open");
   const std::string h = header_bytes(config_hash, total_points, schema_hash);
@@ -400,7 +398,7 @@ void JournalWriter::open_new(const std::string& path, const std::string& config_
     errno = e;
     fail_errno(what, tmp, "writing the header");
   }
-  if (std::rename(tmp.c_str(), path.c_str()) != 0) {
+  if (!atomic_file::replace(tmp, path)) {
     const int e = errno;
     ::close(fd);
     ::unlink(tmp.c_str());
