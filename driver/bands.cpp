@@ -36,13 +36,6 @@ struct BandsSpec : DiagnosticSpec {
 const std::string kG = "/bands", kBand = "/bands/band", kMom = "/bands/momentum", kK = "/bands/k",
                   kArc = "/bands/arc", kKink = "/bands/kink";
 
-std::int64_t max_sites(const Config& c) {
-  std::int64_t m = 0;
-  for (const auto& s : c.sweeps)
-    for (std::int64_t L : s.sites) m = std::max(m, L);
-  return m;
-}
-
 CoordDecl index_axis(const std::string& path, std::int64_t n, const std::string& meaning) {
   CoordDecl c;
   c.path = path;
@@ -122,7 +115,7 @@ class BandsDiagnostic final : public Diagnostic {
                         {AttrDecl::of("classes", std::string(kClassText))}});
     s.coords.push_back(index_axis(kBand, 4, "index j of the block's four exponents, descending (+- paired)"));
     if (e.ring) {
-      s.coords.push_back(index_axis(kMom, std::max<std::int64_t>(max_sites(c) / 2, 1),
+      s.coords.push_back(index_axis(kMom, std::max<std::int64_t>(largest_lattice(c) / 2, 1),
                                     "index m of a ring momentum k_m = 2 pi m / (L/2), m = 0 .. L/2 - 1"));
       s.fields.push_back(field("ring_k", Elem::F64, {kMom}, {true}, "rad", "momentum k_m = 2 pi m / (L/2) of the ring"));
       s.fields.push_back(field("ring_exponents", Elem::F64, {kMom, kBand}, {true, false}, "1/period",

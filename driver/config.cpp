@@ -341,6 +341,13 @@ Config parse_config(const std::string& text, const std::string& source) {
   return c;
 }
 
+std::int64_t largest_lattice(const Config& c) {
+  std::int64_t m = 0;
+  for (const auto& s : c.sweeps)
+    for (std::int64_t L : s.sites) m = std::max(m, L);
+  return m;
+}
+
 Config load_config(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in) throw ConfigError(path + ": cannot read the config file");

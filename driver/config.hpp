@@ -109,6 +109,9 @@ struct Config {
   std::vector<std::shared_ptr<const DiagnosticSpec>> diagnostics;
 };
 
+// The largest lattice size L of any sweep of the config.
+std::int64_t largest_lattice(const Config& c);
+
 // Parses and validates; throws ConfigError with a one-line located message.
 Config parse_config(const std::string& text, const std::string& source);
 // Reads a file (ConfigError when it cannot be read) and parses it.

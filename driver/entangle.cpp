@@ -58,13 +58,6 @@ bool parse_rational(const std::string& s, std::int64_t& num, std::int64_t& den) 
   return whole(sv.substr(0, slash), num) && whole(sv.substr(slash + 1), den) && den > 0;
 }
 
-std::int64_t max_sites(const Config& c) {
-  std::int64_t m = 0;
-  for (const auto& s : c.sweeps)
-    for (std::int64_t L : s.sites) m = std::max(m, L);
-  return m;
-}
-
 }  // namespace
 
 // ---------------------------------------------------------------- config
@@ -90,7 +83,7 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
   cx.only_keys(t, P, {"periods", "regions", "offset", "gaussian", "stabilizer_dims", "profile", "profile_stride",
                       "initial", "radius", "max_precision_bits"});
   e.enabled = true;
-  const std::int64_t Lmax = max_sites(c);
+  const std::int64_t Lmax = largest_lattice(c);
 
   const toml::node* per = t.get("periods");
   if (!per) cx.fail(tline, P, "missing 'periods' (the number T of periods; curves at t = 0..T)");
@@ -472,7 +465,7 @@ Schema declare_entanglement(const Config& c) {
       const std::string q = std::string(kG) + "/stabilizer";
       s.coords.push_back(index_axis(q + "/profile_t", e.periods / e.profile_stride + 1, "periods",
                                     "time of axis 2 of profile: k * stride", e.profile_stride));
-      s.coords.push_back(index_axis(q + "/cut", max_sites(c) + 1, "sites",
+      s.coords.push_back(index_axis(q + "/cut", largest_lattice(c) + 1, "sites",
                                     "x of the prefix [0, x): last axis of profile, 0 .. the largest L of the run"));
     }
   }

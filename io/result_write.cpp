@@ -209,16 +209,6 @@ void put_whole_f64(const h5::Object& parent, bool writer, const std::string& nam
   ds.close();
 }
 
-// Whole-dataset int64 array of shape dims, written by rank 0.
-void put_whole_i64(const h5::Object& parent, bool writer, const std::string& name,
-                   const std::vector<hsize_t>& dims, const std::vector<std::int64_t>& v,
-                   const std::string& units, const std::string& meaning) {
-  h5::Dataset ds = h5::create_dataset(parent, name, H5T_STD_I64LE, dims);
-  describe(ds, units, meaning);
-  h5::write_all(ds, writer, v.data(), H5T_NATIVE_INT64);
-  ds.close();
-}
-
 // Rows of width w of int64 vectors, -1 padded; empty -> a row of -1.
 template <class F>
 std::vector<std::int64_t> irows_of(const std::vector<const PointRecord*>& recs, std::size_t w, F f) {
