@@ -8,12 +8,14 @@
 
 namespace toral {
 
-const Diagnostic& bands_diagnostic();  // driver/bands.cpp
+const Diagnostic& bands_diagnostic();      // driver/bands.cpp
+const Diagnostic& spreading_diagnostic();  // driver/spreading.cpp
 
 const std::vector<const Diagnostic*>& diagnostics() {
   static const std::vector<const Diagnostic*> registry = {
       &entanglement_diagnostic(),  // [entanglement] -> /entanglement (driver/entangle.cpp)
       &bands_diagnostic(),         // [bands] -> /bands (driver/bands.cpp)
+      &spreading_diagnostic(),     // [spreading] -> /spreading (driver/spreading.cpp)
   };
   return registry;
 }

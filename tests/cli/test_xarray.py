@@ -55,6 +55,10 @@ profile_stride = 2
 
 [bands]
 grid = 9
+
+[spreading]
+periods = 12
+stride = 4
 """
 NPOINTS = 2 * 2 * 2 * 3 + 3
 
@@ -63,7 +67,7 @@ EXPECTED_GROUPS = {
     "/", "/points", "/chaos", "/chaos/accuracy", "/chaos/histogram", "/chaos/solver",
     "/limit", "/limit/histogram", "/bounds", "/entanglement", "/entanglement/gaussian",
     "/entanglement/stabilizer", "/stats", "/stats/lambda_max", "/stats/hilbert_cap",
-    "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction",
+    "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction", "/spreading",
 }
 TIMING = {"/points/wall_time", "/chaos/solver/wall_time", "/entanglement/wall_time"}
 

@@ -1,0 +1,38 @@
+// Exact spreading of a localised perturbation: x_t = S_{t-1} ... S_1 S_0 e,
+// with e the unit vector of one coordinate (q or p of one site) and S_t the
+// period matrix of period t (the same every period for time-periodic
+// circuits). The entries of x_t are integers, held exactly (FLINT fmpz), so
+// their logarithms are exact at any t: floating point would lose the front
+// once e^{lambda t} passes 10^16. The amplitude at site i is
+// a_t(i) = max(|q_i|, |p_i|) of x_t, and ln a_t(j + v t) / t is the growth
+// rate along the ray x = j + v t (velocity-dependent Lyapunov exponent,
+// Deissler & Kaneko, Phys. Lett. A 119 (1987) 397) measured at time t.
+#pragma once
+#include <cstdint>
+#include <vector>
+
+#include "model.hpp"
+
+namespace toral {
+
+struct SpreadProfile {
+  std::int64_t L = 0;
+  std::vector<std::int64_t> t;   // the times kept: 0, stride, 2 stride, ..., and T
+  std::vector<double> log_amp;   // t.size() x L, row-major: ln a_t(i); -inf where a_t(i) = 0
+  std::int64_t max_bits = 0;     // largest entry of x_T, in bits (working-size measure)
+};
+
+// The profile of the perturbation of site `site`'s position (momentum =
+// false) or momentum, over T periods, kept every `stride` periods and at T.
+// Throws InvalidInput for a site outside 0..L-1, T < 0 or stride < 1, and
+// ModelError for invalid gates.
+SpreadProfile spread_profile(const GateSource& g, std::int64_t site, bool momentum, std::int64_t T,
+                             std::int64_t stride = 1);
+
+// Growth rates along rays from a profile's last row: for each velocity v
+// (sites per period), ln a_T(round(site + v T)) / T; NaN where that site is
+// outside 0..L-1 (open chains) or T = 0, -inf where the amplitude is 0
+// (outside the light cone).
+std::vector<double> ray_rates(const SpreadProfile& p, std::int64_t site, const std::vector<double>& v);
+
+}  // namespace toral
