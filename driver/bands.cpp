@@ -17,6 +17,7 @@
 #include "config.hpp"
 #include "config_ctx.hpp"
 #include "diagnostic.hpp"
+#include "diagnostic_kit.hpp"
 #include "sweep.hpp"
 #include "text_format.hpp"
 
@@ -37,27 +38,13 @@ const std::string kG = "/bands", kBand = "/bands/band", kMom = "/bands/momentum"
                   kArc = "/bands/arc", kKink = "/bands/kink";
 
 CoordDecl index_axis(const std::string& path, std::int64_t n, const std::string& meaning) {
-  CoordDecl c;
-  c.path = path;
-  c.type = Elem::I64;
-  c.dims = {path};
-  for (std::int64_t i = 0; i < n; ++i) c.i.push_back(i);
-  c.units = "1";
-  c.meaning = meaning;
-  return c;
+  return toral::index_axis(path, n, "1", meaning);
 }
 
 FieldDecl field(const std::string& name, Elem t, std::vector<std::string> dims, std::vector<bool> ragged,
                 std::string units, std::string meaning, std::string stats = {}) {
-  FieldDecl f;
-  f.path = kG + "/" + name;
-  f.type = t;
-  f.dims = std::move(dims);
-  if (std::find(ragged.begin(), ragged.end(), true) != ragged.end()) f.ragged = std::move(ragged);
-  f.units = std::move(units);
-  f.meaning = std::move(meaning);
-  f.stats = std::move(stats);
-  return f;
+  return field_decl(kG + "/" + name, t, std::move(dims), std::move(ragged), std::move(units), std::move(meaning),
+                    std::move(stats));
 }
 
 const char* const kClassText = "0 elliptic (every eigenvalue of the block on the unit circle: four zero exponents), "
@@ -74,18 +61,10 @@ class BandsDiagnostic final : public Diagnostic {
                                               const Config&) const override {
     auto e = std::make_shared<BandsSpec>();
     const Ctx cx(source);
-    toml::table root;
-    try {
-      root = toml::parse(text, source);
-    } catch (const toml::parse_error& err) {  // parse_config has reported syntax errors already
-      cx.fail(static_cast<std::int64_t>(err.source().begin.line), "",
-              std::string("TOML syntax: ") + std::string(err.description()));
-    }
-    const toml::node* node = root.get("bands");
-    if (!node) return e;
+    const DiagnosticTable d = read_diagnostic_table(text, source, "bands");
+    if (!d.table) return e;
     const std::string P = "bands";
-    if (!node->is_table()) cx.fail(*node, P, std::string("must be a table, not ") + Ctx::type_name(*node));
-    const toml::table& t = *node->as_table();
+    const toml::table& t = *d.table;
     cx.only_keys(t, P, {"ring", "bulk", "grid", "max_arcs"});
     e->enabled = true;
     if (const toml::node* n = t.get("ring")) e->ring = cx.boolean(*n, P + ".ring");
@@ -100,7 +79,7 @@ class BandsDiagnostic final : public Diagnostic {
       if (e->max_arcs < 1 || e->max_arcs > 100'000)
         cx.fail(*n, P + ".max_arcs", std::to_string(e->max_arcs) + " is outside 1..100000");
     }
-    if (!e->ring && !e->bulk) cx.fail(*node, P, "ring = false and bulk = false leave nothing to compute");
+    if (!e->ring && !e->bulk) cx.fail(d.line, P, "ring = false and bulk = false leave nothing to compute");
     return e;
   }
 

@@ -1,6 +1,7 @@
 #include "entangle.hpp"
 
 #include "config_ctx.hpp"
+#include "diagnostic_kit.hpp"
 #include "text_format.hpp"
 
 #include <toml++/toml.h>
@@ -67,19 +68,11 @@ namespace {
 EntanglementSpec parse_entanglement(const std::string& text, const std::string& source, const Config& c) {
   EntanglementSpec e;
   const Loc cx(source);
-  toml::table root;
-  try {
-    root = toml::parse(text, source);
-  } catch (const toml::parse_error& err) {  // parse_config has reported syntax errors already
-    cx.fail(static_cast<std::int64_t>(err.source().begin.line), "", std::string("TOML syntax: ") +
-                                                                       std::string(err.description()));
-  }
-  const toml::node* node = root.get("entanglement");
-  if (!node) return e;
+  const DiagnosticTable tab = read_diagnostic_table(text, source, "entanglement");
+  if (!tab.table) return e;
   const std::string P = "entanglement";
-  if (!node->is_table()) cx.fail(*node, P, std::string("must be a table, not ") + Loc::type_name(*node));
-  const toml::table& t = *node->as_table();
-  const std::int64_t tline = Loc::line(*node);
+  const toml::table& t = *tab.table;
+  const std::int64_t tline = tab.line;
   cx.only_keys(t, P, {"periods", "regions", "offset", "gaussian", "stabilizer_dims", "profile", "profile_stride",
                       "initial", "radius", "max_precision_bits"});
   e.enabled = true;
@@ -275,25 +268,7 @@ struct Slot {
 
 FieldDecl field(std::string path, Elem type, std::vector<std::string> dims, std::string units, std::string meaning,
                 std::string stats = {}) {
-  FieldDecl f;
-  f.path = std::move(path);
-  f.type = type;
-  f.dims = std::move(dims);
-  f.units = std::move(units);
-  f.meaning = std::move(meaning);
-  f.stats = std::move(stats);
-  return f;
-}
-
-CoordDecl index_axis(std::string path, std::int64_t n, std::string units, std::string meaning, std::int64_t step = 1) {
-  CoordDecl c;
-  c.path = path;
-  c.type = Elem::I64;
-  c.dims = {std::move(path)};
-  for (std::int64_t k = 0; k < n; ++k) c.i.push_back(k * step);
-  c.units = std::move(units);
-  c.meaning = std::move(meaning);
-  return c;
+  return field_decl(std::move(path), type, std::move(dims), {}, std::move(units), std::move(meaning), std::move(stats));
 }
 
 const char* const kG = "/entanglement";

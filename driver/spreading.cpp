@@ -15,6 +15,7 @@
 #include "config.hpp"
 #include "config_ctx.hpp"
 #include "diagnostic.hpp"
+#include "diagnostic_kit.hpp"
 #include "spreading.hpp"
 #include "sweep.hpp"
 #include "text_format.hpp"
@@ -39,15 +40,8 @@ const std::string kG = "/spreading", kT = "/spreading/t", kSite = "/spreading/si
 
 FieldDecl field(const std::string& name, Elem t, std::vector<std::string> dims, std::vector<bool> ragged,
                 std::string units, std::string meaning, std::string stats = {}) {
-  FieldDecl f;
-  f.path = kG + "/" + name;
-  f.type = t;
-  f.dims = std::move(dims);
-  if (std::find(ragged.begin(), ragged.end(), true) != ragged.end()) f.ragged = std::move(ragged);
-  f.units = std::move(units);
-  f.meaning = std::move(meaning);
-  f.stats = std::move(stats);
-  return f;
+  return field_decl(kG + "/" + name, t, std::move(dims), std::move(ragged), std::move(units), std::move(meaning),
+                    std::move(stats));
 }
 
 std::vector<std::int64_t> kept_times(const SpreadingSpec& e) {
@@ -74,22 +68,14 @@ class SpreadingDiagnostic final : public Diagnostic {
                                               const Config& c) const override {
     auto e = std::make_shared<SpreadingSpec>();
     const Ctx cx(source);
-    toml::table root;
-    try {
-      root = toml::parse(text, source);
-    } catch (const toml::parse_error& err) {  // parse_config has reported syntax errors already
-      cx.fail(static_cast<std::int64_t>(err.source().begin.line), "",
-              std::string("TOML syntax: ") + std::string(err.description()));
-    }
-    const toml::node* node = root.get("spreading");
-    if (!node) return e;
+    const DiagnosticTable d = read_diagnostic_table(text, source, "spreading");
+    if (!d.table) return e;
     const std::string P = "spreading";
-    if (!node->is_table()) cx.fail(*node, P, std::string("must be a table, not ") + Ctx::type_name(*node));
-    const toml::table& t = *node->as_table();
+    const toml::table& t = *d.table;
     cx.only_keys(t, P, {"periods", "site", "component", "stride", "velocities"});
     e->enabled = true;
     const toml::node* per = t.get("periods");
-    if (!per) cx.fail(Ctx::line(*node), P, "missing 'periods' (the number T of periods to propagate)");
+    if (!per) cx.fail(d.line, P, "missing 'periods' (the number T of periods to propagate)");
     e->periods = cx.integer(*per, P + ".periods");
     if (e->periods < 1 || e->periods > 1'000'000)
       cx.fail(*per, P + ".periods", "T = " + std::to_string(e->periods) + " is outside 1..10^6");
@@ -138,22 +124,9 @@ class SpreadingDiagnostic final : public Diagnostic {
     t.units = "periods";
     t.meaning = "the kept times of the profile: multiples of the stride, and T";
     s.coords.push_back(std::move(t));
-    CoordDecl site;
-    site.path = kSite;
-    site.type = Elem::I64;
-    site.dims = {kSite};
-    for (std::int64_t i = 0; i < largest_lattice(c); ++i) site.i.push_back(i);
-    site.units = "1";
-    site.meaning = "site index i, 0 .. the largest L of the run";
-    s.coords.push_back(std::move(site));
-    CoordDecl v;
-    v.path = kV;
-    v.type = Elem::F64;
-    v.dims = {kV};
-    v.f = velocity_grid(e);
-    v.units = "sites/period";
-    v.meaning = "ray velocity v on [-2, 2], the brick-wall's light cone";
-    s.coords.push_back(std::move(v));
+    s.coords.push_back(index_axis(kSite, largest_lattice(c), "1", "site index i, 0 .. the largest L of the run"));
+    s.coords.push_back(value_axis(kV, velocity_grid(e), "sites/period",
+                                  "ray velocity v on [-2, 2], the brick-wall's light cone"));
     s.fields.push_back(field("start", Elem::I64, {}, {}, "1", "the perturbed site of the point"));
     s.fields.push_back(field("log_amplitude", Elem::F64, {kT, kSite}, {false, true}, "1",
                              "ln max(|q_i|, |p_i|) of x_t at site i (exact integers, rounded once to double); -inf "
@@ -195,11 +168,7 @@ class SpreadingDiagnostic final : public Diagnostic {
           hi = i;
         }
       const double T = static_cast<double>(e.periods);
-      auto scalar = [](double x) {
-        FieldValue f;
-        f.f = {x};
-        return f;
-      };
+      const auto scalar = [](double x) { return scalar_value(x); };
       FieldValue st, prof, rate, bits;
       st.i = {start};
       prof.shape = {static_cast<std::int64_t>(sp.t.size()), sp.L};
