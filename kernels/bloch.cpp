@@ -537,6 +537,31 @@ std::vector<std::complex<double>> bloch_matrix(const Circuit& c, double k, int& 
   return m;
 }
 
+BlochSymbol bloch_symbol(const Circuit& c) {
+  const CellGates cg = extract_gates(c, "bloch_symbol");
+  BlochSymbol s;
+  s.dim = cg.dim();
+  s.position = cg.position;
+  const std::size_t n = static_cast<std::size_t>(s.dim * s.dim);
+  cd p[16], m[16], q[16];
+  build_matrix(cg, cd(1.0, 0.0), p);   // A- + A0 + A+
+  build_matrix(cg, cd(-1.0, 0.0), m);  // -A- + A0 - A+
+  build_matrix(cg, cd(0.0, 1.0), q);   // -i A- + A0 + i A+
+  for (auto& v : s.coef) v.resize(n);
+  for (std::size_t j = 0; j < n; ++j) {
+    const double a0 = 0.5 * (p[j].real() + m[j].real());
+    const double sum = 0.5 * (p[j].real() - m[j].real());  // A+ + A-
+    const double diff = q[j].imag();                         // A+ - A-
+    const double vals[3] = {0.5 * (sum - diff), a0, 0.5 * (sum + diff)};
+    for (int d = 0; d < 3; ++d) {
+      if (!(std::fabs(vals[d]) < 9007199254740992.0))
+        throw InvalidInput("bloch_symbol: a Laurent coefficient of the Bloch block exceeds 2^53");
+      s.coef[d][j] = std::nearbyint(vals[d]);
+    }
+  }
+  return s;
+}
+
 std::vector<double> bloch_exponents(const Circuit& c, double k) {
   const CellGates cg = extract_gates(c, "bloch_exponents");
   BlochEvaluator ev(cg, false);

@@ -19,6 +19,20 @@ namespace toral {
 // The Bloch matrix at momentum k (row-major, dim x dim, dim = 2 or 4).
 std::vector<std::complex<double>> bloch_matrix(const Circuit& c, double k, int& dim);
 
+// The Bloch block as a Laurent polynomial in z (any complex z, not only the
+// unit circle): M(z) = coef[0] / z + coef[1] + coef[2] z, each row-major
+// dim x dim with exact integer entries (held as doubles). `position` is true
+// for the 2x2 block on (q_x, q_y) of position-class circuits (the momenta
+// follow the symbol M(1/z)^-T), false for the 4x4 block. Depends on the gates
+// only (any boundary, any L); throws ModelError when the circuit is not
+// translation invariant and InvalidInput when an entry exceeds 2^53.
+struct BlochSymbol {
+  int dim = 0;
+  bool position = false;
+  std::vector<double> coef[3];
+};
+BlochSymbol bloch_symbol(const Circuit& c);
+
 // The 4 exponents of S contributed by momentum k, sorted descending, +- paired.
 // (Checks translation invariance, O(L), on every call.)
 std::vector<double> bloch_exponents(const Circuit& c, double k);
