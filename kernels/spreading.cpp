@@ -18,6 +18,46 @@ double log_abs(const fmpz_t x) {
   return std::log(std::fabs(d)) + static_cast<double>(e) * std::log(2.0);
 }
 
+// acc = v * a (first term) or acc += v * a: unit entries, the common case in
+// gates, are plain copies and additions (no limb multiplications).
+void set_mul(fmpz_t acc, const fmpz_t a, std::int64_t v) {
+  if (v == 1) fmpz_set(acc, a);
+  else if (v == -1) fmpz_neg(acc, a);
+  else fmpz_mul_si(acc, a, static_cast<slong>(v));
+}
+
+void add_mul(fmpz_t acc, const fmpz_t a, std::int64_t v) {
+  if (v == 1) fmpz_add(acc, acc, a);
+  else if (v == -1) fmpz_sub(acc, acc, a);
+  else if (v > 0) fmpz_addmul_ui(acc, a, static_cast<ulong>(v));
+  else fmpz_submul_ui(acc, a, static_cast<ulong>(-(v + 1)) + 1u);
+}
+
+// x <- g x on the m coordinates idx[0..m) of x, g row-major m x m, in place:
+// the new values are built in the scratch entries s[0..m) and swapped in, so
+// the scratch then holds the old values and their limbs are reused by the next
+// gate (no allocation once the entries have grown). Nothing is done where all
+// m inputs are zero (outside the light cone).
+template <int m>
+void apply_local(fmpz* x, const slong (&idx)[m], const std::int64_t* g, fmpz* s) {
+  bool any = false;
+  for (int k = 0; k < m; ++k) any = any || !fmpz_is_zero(x + idx[k]);
+  if (!any) return;
+  for (int j = 0; j < m; ++j) {
+    bool first = true;
+    for (int k = 0; k < m; ++k) {
+      const std::int64_t v = g[j * m + k];
+      const fmpz* a = x + idx[k];
+      if (v == 0 || fmpz_is_zero(a)) continue;
+      if (first) set_mul(s + j, a, v);
+      else add_mul(s + j, a, v);
+      first = false;
+    }
+    if (first) fmpz_zero(s + j);
+  }
+  for (int j = 0; j < m; ++j) fmpz_swap(x + idx[j], s + j);
+}
+
 }  // namespace
 
 SpreadProfile spread_profile(const GateSource& g, std::int64_t site, bool momentum, std::int64_t T,
@@ -28,9 +68,9 @@ SpreadProfile spread_profile(const GateSource& g, std::int64_t site, bool moment
   if (T < 0) throw InvalidInput("spread_profile: T = " + std::to_string(T) + " < 0");
   if (stride < 1) throw InvalidInput("spread_profile: stride = " + std::to_string(stride) + " < 1");
   const slong n = static_cast<slong>(2 * L);  // coordinates (q_0..q_{L-1}, p_0..p_{L-1}) (model.hpp)
-  flint::Mat xm(1, n), ym(1, n);
+  flint::Mat xm(1, n), sm(1, 4);
   fmpz* x = fmpz_mat_entry(xm.get(), 0, 0);
-  fmpz* y = fmpz_mat_entry(ym.get(), 0, 0);
+  fmpz* scratch = fmpz_mat_entry(sm.get(), 0, 0);
   fmpz_one(x + (momentum ? L + site : site));
   SpreadProfile out;
   out.L = L;
@@ -43,27 +83,30 @@ SpreadProfile spread_profile(const GateSource& g, std::int64_t site, bool moment
     }
   };
   keep(0);
-  SparseInt S;
+  // One period is S = K B_1 B_0 (assemble_period): the even bonds, then the
+  // odd bonds, then the one-site layer K if any. Its gates act on disjoint
+  // coordinates within a layer, so x_{t+1} = S x_t is applied gate by gate in
+  // place, each gate's 4 x 4 (site: 2 x 2) block on its own coordinates:
+  // fewer and cheaper limb operations than the rows of the assembled S,
+  // whose entries mix two layers.
   Circuit c;
   for (std::int64_t t = 0; t < T; ++t) {
     if (t == 0 || !g.time_periodic) {
       c = materialize(g, t);
       c.validate();
-      S = assemble_period(c);
     }
-    for (slong i = 0; i < n; ++i) {
-      fmpz_zero(y + i);
-      for (std::int64_t k = S.rowptr[static_cast<std::size_t>(i)]; k < S.rowptr[static_cast<std::size_t>(i) + 1]; ++k) {
-        const fmpz* xs = x + S.col[static_cast<std::size_t>(k)];
-        if (fmpz_is_zero(xs)) continue;
-        const std::int64_t v = S.val[static_cast<std::size_t>(k)];
-        if (v >= 0) fmpz_addmul_ui(y + i, xs, static_cast<ulong>(v));
-        else fmpz_submul_ui(y + i, xs, static_cast<ulong>(-(v + 1)) + 1u);
+    for (int parity = 0; parity < 2; ++parity)
+      for (std::int64_t b = parity; b < c.bond_count(); b += 2) {
+        const slong s0 = static_cast<slong>(b), s1 = static_cast<slong>((b + 1) % L);
+        // local 2k -> q of site s_k, 2k + 1 -> p of site s_k (model.cpp, bond_layer)
+        const slong idx[4] = {s0, static_cast<slong>(L) + s0, s1, static_cast<slong>(L) + s1};
+        apply_local<4>(x, idx, c.bonds[static_cast<std::size_t>(b)].G.a.data(), scratch);
       }
-    }
-    fmpz_mat_swap(xm.get(), ym.get());
-    x = fmpz_mat_entry(xm.get(), 0, 0);
-    y = fmpz_mat_entry(ym.get(), 0, 0);
+    if (c.has_site_layer())
+      for (std::int64_t i = 0; i < L; ++i) {
+        const slong idx[2] = {static_cast<slong>(i), static_cast<slong>(L + i)};
+        apply_local<2>(x, idx, c.sites[static_cast<std::size_t>(i)].a.data(), scratch);
+      }
     if ((t + 1) % stride == 0 || t + 1 == T) keep(t + 1);
   }
   for (slong i = 0; i < n; ++i)
