@@ -2,8 +2,11 @@
 // (driver/diagnostic.hpp): the amplitude profile ln max(|q_i|, |p_i|) of
 // S^t e over the lattice at kept times, and the growth rates along rays
 // x = start + v t at the last time (kernels/spreading.hpp). Works for every
-// circuit: clean or disordered, open or periodic, redrawn in time. Table
-// [spreading] (docs/config.md), group /spreading (docs/layout.md).
+// circuit: clean or disordered, open or periodic, redrawn in time. With
+// starts = n > 1 the propagation is repeated from n starting sites and the
+// ray rates are averaged over them with a standard error (different starts
+// see different gates in a disordered chain). Table [spreading]
+// (docs/config.md), group /spreading (docs/layout.md).
 #include <toml++/toml.h>
 
 #include <algorithm>
@@ -17,6 +20,7 @@
 #include "diagnostic.hpp"
 #include "diagnostic_kit.hpp"
 #include "spreading.hpp"
+#include "stats.hpp"
 #include "sweep.hpp"
 #include "text_format.hpp"
 
@@ -34,9 +38,11 @@ struct SpreadingSpec : DiagnosticSpec {
   bool momentum = false;      // perturb p instead of q
   std::int64_t stride = 1;    // keep the profile every stride periods (and at T)
   std::int64_t velocities = 41;  // ray grid on [-2, 2] sites per period
+  std::int64_t starts = 1;    // number of starting sites the ray rates are averaged over
 };
 
-const std::string kG = "/spreading", kT = "/spreading/t", kSite = "/spreading/site", kV = "/spreading/velocity";
+const std::string kG = "/spreading", kT = "/spreading/t", kSite = "/spreading/site", kV = "/spreading/velocity",
+                  kStart = "/spreading/start_index";
 
 FieldDecl field(const std::string& name, Elem t, std::vector<std::string> dims, std::vector<bool> ragged,
                 std::string units, std::string meaning, std::string stats = {}) {
@@ -58,6 +64,59 @@ std::vector<double> velocity_grid(const SpreadingSpec& e) {
   return v;
 }
 
+// The starting sites of a point: the first is `first` (the configured site
+// or the centre); the others complete an evenly spaced comb through it on
+// the strip of sites m .. L-1-m, read as a ring of W = L - 2m sites:
+// m + ((first - m) + round(k W / n)) mod W, k = 1 .. n-1. A ring has m = 0.
+// An open chain keeps m = 2T (the light cone's reach at T) from each end,
+// so that every ray of a start inside the strip stays in the chain up to T,
+// shrunk to floor((L - n) / 2) where the strip would hold fewer than n
+// sites. The sites are distinct (n <= L is checked by parse).
+std::vector<std::int64_t> start_sites(std::int64_t first, std::int64_t L, Boundary b, std::int64_t T,
+                                      std::int64_t n) {
+  const std::int64_t m = b == Boundary::Open ? std::min<std::int64_t>(2 * T, (L - n) / 2) : 0;
+  const std::int64_t W = L - 2 * m;
+  const std::int64_t phase = ((first - m) % W + W) % W;
+  std::vector<std::int64_t> s{first};
+  for (std::int64_t k = 1; k < n; ++k) s.push_back(m + (phase + (2 * k * W + n) / (2 * n)) % W);
+  return s;
+}
+
+// The ray rates of one start s, read from the last row of its profile. On an
+// open chain as ray_rates does (NaN where the ray leaves the chain). On a
+// ring every start is read at the offsets d = x - first of the first start's
+// rays that lie in 0..L-1, at site (s + d) mod L, so that all starts cover
+// the same rays; n = 1 gives ray_rate itself.
+std::vector<double> start_ray_rates(const SpreadProfile& sp, std::int64_t s, std::int64_t first, Boundary b,
+                                    const std::vector<double>& v) {
+  if (b == Boundary::Open || s == first) return ray_rates(sp, s, v);
+  std::vector<double> r(v.size(), std::numeric_limits<double>::quiet_NaN());
+  const std::int64_t T = sp.t.back(), L = sp.L;
+  const double* last = sp.log_amp.data() + (sp.t.size() - 1) * static_cast<std::size_t>(L);
+  for (std::size_t k = 0; k < v.size(); ++k) {
+    const double x = std::round(static_cast<double>(first) + v[k] * static_cast<double>(T));
+    if (x < 0 || x > static_cast<double>(L - 1)) continue;
+    const std::int64_t d = static_cast<std::int64_t>(x) - first;
+    r[k] = last[static_cast<std::size_t>(((s + d) % L + L) % L)] / static_cast<double>(T);
+  }
+  return r;
+}
+
+// The largest non-NaN value of a list; NaN when there is none.
+double largest(const std::vector<double>& r) {
+  double best = std::numeric_limits<double>::quiet_NaN();
+  for (double x : r)
+    if (!std::isnan(x) && (std::isnan(best) || x > best)) best = x;
+  return best;
+}
+
+std::int64_t smallest_lattice(const Config& c) {
+  std::int64_t m = std::numeric_limits<std::int64_t>::max();
+  for (const auto& s : c.sweeps)
+    for (std::int64_t L : s.sites) m = std::min(m, L);
+  return m;
+}
+
 const SpreadingSpec& spec_of(const Config& c);
 
 class SpreadingDiagnostic final : public Diagnostic {
@@ -72,7 +131,7 @@ class SpreadingDiagnostic final : public Diagnostic {
     if (!d.table) return e;
     const std::string P = "spreading";
     const toml::table& t = *d.table;
-    cx.only_keys(t, P, {"periods", "site", "component", "stride", "velocities"});
+    cx.only_keys(t, P, {"periods", "site", "component", "stride", "velocities", "starts"});
     e->enabled = true;
     const toml::node* per = t.get("periods");
     if (!per) cx.fail(d.line, P, "missing 'periods' (the number T of periods to propagate)");
@@ -103,6 +162,14 @@ class SpreadingDiagnostic final : public Diagnostic {
       if (e->velocities < 2 || e->velocities > 100'000)
         cx.fail(*n, P + ".velocities", std::to_string(e->velocities) + " is outside 2..100000");
     }
+    if (const toml::node* n = t.get("starts")) {
+      e->starts = cx.integer(*n, P + ".starts");
+      if (e->starts < 1 || e->starts > 100'000)
+        cx.fail(*n, P + ".starts", std::to_string(e->starts) + " is outside 1..100000");
+      if (e->starts > smallest_lattice(c))
+        cx.fail(*n, P + ".starts", std::to_string(e->starts) + " starting sites do not fit the smallest lattice (L = " +
+                                       std::to_string(smallest_lattice(c)) + ")");
+    }
     return e;
   }
 
@@ -127,6 +194,7 @@ class SpreadingDiagnostic final : public Diagnostic {
     s.coords.push_back(index_axis(kSite, largest_lattice(c), "1", "site index i, 0 .. the largest L of the run"));
     s.coords.push_back(value_axis(kV, velocity_grid(e), "sites/period",
                                   "ray velocity v on [-2, 2], the brick-wall's light cone"));
+    s.coords.push_back(index_axis(kStart, e.starts, "1", "index of a starting site, 0 .. starts - 1"));
     s.fields.push_back(field("start", Elem::I64, {}, {}, "1", "the perturbed site of the point"));
     s.fields.push_back(field("log_amplitude", Elem::F64, {kT, kSite}, {false, true}, "1",
                              "ln max(|q_i|, |p_i|) of x_t at site i (exact integers, rounded once to double); -inf "
@@ -142,6 +210,22 @@ class SpreadingDiagnostic final : public Diagnostic {
     s.fields.push_back(field("front_right", Elem::F64, {}, {}, "sites/period",
                              "(rightmost site with a nonzero amplitude at T - start) / T"));
     s.fields.push_back(field("max_bits", Elem::I64, {}, {}, "bits", "largest entry of x_T in bits"));
+    s.fields.push_back(field("starts", Elem::I64, {kStart}, {}, "1",
+                             "the starting sites the ray rates are averaged over; the first is start (docs/config.md, "
+                             "[spreading] starts)"));
+    s.fields.push_back(field("ray_rate_mean", Elem::F64, {kV}, {}, "1/period",
+                             "mean over the starts s of ln a_T(s + v T) / T, over the starts whose ray stays in the "
+                             "chain (ray_count); NaN where none does, -inf where one start's amplitude there is 0"));
+    s.fields.push_back(field("ray_rate_se", Elem::F64, {kV}, {}, "1/period",
+                             "standard error of ray_rate_mean: sample standard deviation (ddof = 1) / sqrt(ray_count); "
+                             "NaN where ray_count < 2 or the mean is not finite"));
+    s.fields.push_back(field("ray_count", Elem::I64, {kV}, {}, "1",
+                             "number of starts whose ray of velocity v stays in the chain up to T"));
+    s.fields.push_back(field("max_ray_rate_mean", Elem::F64, {}, {}, "1/period",
+                             "mean over the starts of each start's largest ray rate over the velocity grid",
+                             "spreading_max_ray_rate_mean"));
+    s.fields.push_back(field("max_ray_rate_se", Elem::F64, {}, {}, "1/period",
+                             "standard error of max_ray_rate_mean (ddof = 1); NaN for one start"));
     return s;
   }
 
@@ -176,8 +260,33 @@ class SpreadingDiagnostic final : public Diagnostic {
       rate.shape = {e.velocities};
       rate.f = rr;
       bits.i = {sp.max_bits};
+      // The other starts: only the last row of each profile is needed.
+      const std::vector<std::int64_t> starts = start_sites(start, p.L, p.boundary, e.periods, e.starts);
+      std::vector<std::vector<double>> rates{rr};
+      for (std::size_t k = 1; k < starts.size(); ++k) {
+        const SpreadProfile sk = spread_profile(gate_source(c, p), starts[k], e.momentum, e.periods, e.periods);
+        rates.push_back(start_ray_rates(sk, starts[k], start, p.boundary, v));
+      }
+      FieldValue sites, mean, se, count;
+      sites.shape = {e.starts};
+      sites.i = starts;
+      mean.shape = se.shape = count.shape = {e.velocities};
+      for (std::size_t j = 0; j < v.size(); ++j) {
+        std::vector<double> at_v;
+        for (const auto& r : rates)
+          if (!std::isnan(r[j])) at_v.push_back(r[j]);
+        count.i.push_back(static_cast<std::int64_t>(at_v.size()));
+        const SampleStats ss = sample_stats(std::move(at_v));
+        mean.f.push_back(ss.mean);
+        se.f.push_back(ss.sem);
+      }
+      std::vector<double> tops;
+      for (const auto& r : rates)
+        if (const double m = largest(r); !std::isnan(m)) tops.push_back(m);
+      const SampleStats top = sample_stats(std::move(tops));
       out.fields = {st, prof, rate, scalar(best), scalar(at), scalar(static_cast<double>(lo - start) / T),
-                    scalar(static_cast<double>(hi - start) / T), bits};
+                    scalar(static_cast<double>(hi - start) / T), bits, sites, mean, se, count,
+                    scalar(top.mean), scalar(top.sem)};
     } catch (const std::exception& ex) {
       out.failure = ex.what();
     }
@@ -188,7 +297,9 @@ class SpreadingDiagnostic final : public Diagnostic {
     // Entries grow like e^{lambda t}: about lambda T / ln 2 bits on ~min(L, 4T)
     // sites; each period touches every nonzero entry a few times. Probed on
     // the point itself for a short T and scaled by T^2 (work per period grows
-    // with the entries' size), the working set by T.
+    // with the entries' size), the working set by T. The starts are
+    // propagated one after the other: n times the time, the same working set
+    // (only the first keeps its profile).
     const SpreadingSpec& e = spec_of(c);
     const std::int64_t start = e.site < 0 ? p.L / 2 : e.site;
     DiagnosticEstimate d;
@@ -198,9 +309,10 @@ class SpreadingDiagnostic final : public Diagnostic {
     const SpreadProfile sp = spread_profile(gate_source(c, p), start, e.momentum, probe, probe);
     const double s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     const double ratio = static_cast<double>(e.periods) / static_cast<double>(probe);
-    d.seconds = s * ratio * ratio;
+    d.seconds = s * ratio * ratio * static_cast<double>(e.starts);  // one propagation per start
     d.bytes = 2.0 * static_cast<double>(2 * p.L) * (16.0 + static_cast<double>(sp.max_bits) * ratio / 8.0) +
-              8.0 * static_cast<double>(kept_times(e).size() * static_cast<std::size_t>(p.L));
+              8.0 * static_cast<double>(kept_times(e).size() * static_cast<std::size_t>(p.L)) +
+              8.0 * static_cast<double>(e.starts) * static_cast<double>(e.velocities + 1);
     return d;
   }
 
@@ -215,6 +327,9 @@ class SpreadingDiagnostic final : public Diagnostic {
        << "    max ray rate " << num(v[3].f[0]) << " at v = " << num(v[4].f[0], 4) << " sites/period; support "
        << "edges at v = " << num(v[5].f[0], 4) << " and " << num(v[6].f[0], 4) << "; largest entry " << v[7].i[0]
        << " bits\n";
+    if (e.starts > 1 && v.size() >= 14)
+      os << "    over " << e.starts << " starts: mean max ray rate " << num(v[12].f[0]) << " +- " << num(v[13].f[0])
+         << " (standard error)\n";
   }
 };
 

@@ -120,13 +120,18 @@ def datasets(path):
     return out, attrs
 
 
-# Exact curves too: Gaussian and stabilizer (with the profile) in the same files.
+# Exact curves too: Gaussian and stabilizer (with the profile) in the same
+# files, and the spreading profiles averaged over several starts.
 SMALL_ENT = """
 [entanglement]
 periods = 20
 regions = [2, [0, 3]]
 stabilizer_dims = [2, 3]
 profile = true
+
+[spreading]
+periods = 5
+starts = 3
 """
 TIMINGS = ("points/wall_time", "chaos/solver/wall_time", "entanglement/wall_time")
 
@@ -139,6 +144,8 @@ def test_one_and_two_ranks_write_identical_datasets(tmp_path, run_toral):
     da, aa = datasets(a)
     db, ab = datasets(b)
     assert sorted(da) == sorted(db) and "entanglement/gaussian/entropy" in da
+    assert {"spreading/ray_rate_mean", "spreading/ray_rate_se", "spreading/ray_count", "spreading/starts",
+            "spreading/max_ray_rate_mean"} <= da.keys()
     for name in da:
         if name in TIMINGS:
             continue

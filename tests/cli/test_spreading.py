@@ -134,12 +134,143 @@ def test_clean_ring_top_ray_rate_tends_to_lambda_max(tmp_path, run_toral):
     assert gaps[1] < gaps[0]
 
 
+# shear2 gates with a, b != 0 couple both ways, so most rays are finite.
+STARTS_CONFIG = """
+[[sweep]]
+name = "dis_open"
+sites = 26
+boundary = "open"
+seeds = [1, 2]
+[sweep.bond]
+family = "shear2"
+a = { draw = [-2, -1] }
+b = { draw = [1, 2] }
+
+[[sweep]]
+name = "dis_ring"
+sites = 20
+seeds = [1, 2]
+[sweep.bond]
+family = "shear2"
+a = { draw = [-2, -1] }
+b = { draw = [1, 2] }
+
+[spreading]
+periods = 6
+velocities = 25
+starts = 3
+"""
+
+
+def comb(first, L, open_chain, T, n):
+    """The documented start rule (docs/config.md, [spreading] starts)."""
+    m = min(2 * T, (L - n) // 2) if open_chain else 0
+    W = L - 2 * m
+    return [first] + [m + ((first - m) % W + (2 * k * W + n) // (2 * n)) % W for k in range(1, n)]
+
+
+def test_start_average_equals_numpy_over_python_propagations(tmp_path, run_toral):
+    # Three starts on small disordered chains, open and periodic. Each start
+    # is propagated here with Python integers (the exported S); the ray rates
+    # ln a_T(s + vT)/T are averaged with numpy: mean, and std(ddof=1)/sqrt(n)
+    # for the standard error (reference library).
+    T, n = 6, 3
+    cfg = tmp_path / "st.toml"
+    cfg.write_text(STARTS_CONFIG)
+    out = tmp_path / "st.h5"
+    run_toral("run", cfg, "-o", out, "-q", check=True)
+    with h5py.File(out, "r") as f:
+        P = f["points/status"].shape[0]
+        assert P == 4 and (f["points/status"][()] == 0).all()
+        assert f["spreading/start_index"][()].tolist() == [0, 1, 2]
+        v = f["spreading/velocity"][()]
+        partial = 0
+        for i in range(P):
+            L = int(f["points/sites"][i])
+            open_chain = int(f["points/boundary"][i]) == 1
+            starts = f["spreading/starts"][i].tolist()
+            assert starts == comb(L // 2, L, open_chain, T, n) and len(set(starts)) == n
+            assert starts[0] == f["spreading/start"][i]
+            if open_chain:  # away from the ends where the chain allows it
+                m = min(2 * T, (L - n) // 2)
+                assert all(m <= s <= L - 1 - m for s in starts)
+            mtx = tmp_path / f"st{i}.mtx"
+            run_toral("point", cfg, "--index", i, "--matrix", mtx, check=True)
+            last = [propagate(mtx, L, s, False, T, T)[-1] for s in starts]
+            rates = np.full((n, len(v)), np.nan)
+            for k, s in enumerate(starts):
+                for j, vel in enumerate(v):
+                    x0 = math.floor(starts[0] + vel * T + 0.5)  # the first start's ray
+                    if open_chain:
+                        x = math.floor(s + vel * T + 0.5)
+                        if 0 <= x < L:
+                            rates[k, j] = last[k][x] / T
+                    elif 0 <= x0 < L:  # a ring: the first start's offsets, modulo L
+                        rates[k, j] = last[k][(s + x0 - starts[0]) % L] / T
+            # the first start is the ray_rate of the single-start fields
+            np.testing.assert_array_equal(np.isnan(rates[0]), np.isnan(f["spreading/ray_rate"][i]))
+            fin = ~np.isnan(rates[0])
+            np.testing.assert_allclose(f["spreading/ray_rate"][i][fin], rates[0][fin], rtol=1e-13, atol=1e-15)
+            count = (~np.isnan(rates)).sum(axis=0)
+            np.testing.assert_array_equal(f["spreading/ray_count"][i], count, err_msg=f"point {i}")
+            partial += int((count < n).any() and (count > 0).any())
+            mean, se = f["spreading/ray_rate_mean"][i], f["spreading/ray_rate_se"][i]
+            for j in range(len(v)):
+                r = rates[:, j][~np.isnan(rates[:, j])]
+                if len(r) == 0:
+                    assert np.isnan(mean[j]) and np.isnan(se[j])
+                    continue
+                with np.errstate(invalid="ignore"):
+                    want_m, want_se = np.mean(r), (np.std(r, ddof=1) / np.sqrt(len(r)) if len(r) > 1 else np.nan)
+                if np.isinf(want_m):
+                    assert mean[j] == want_m and np.isnan(se[j])
+                else:
+                    assert mean[j] == pytest.approx(want_m, rel=1e-12, abs=1e-14), (i, j)
+                    if len(r) > 1:
+                        assert se[j] == pytest.approx(want_se, rel=1e-9, abs=1e-14), (i, j)
+                    else:
+                        assert np.isnan(se[j])
+            tops = np.array([np.nanmax(r) for r in rates])
+            assert f["spreading/max_ray_rate_mean"][i] == pytest.approx(np.mean(tops), rel=1e-12)
+            assert f["spreading/max_ray_rate_se"][i] == pytest.approx(np.std(tops, ddof=1) / np.sqrt(n), rel=1e-9)
+        assert partial >= 1  # some open-chain rays left the chain for some starts only
+        # the ensemble column over the seeds (numpy mean, reference library)
+        st = f["stats/spreading_max_ray_rate_mean"]
+        tops = f["spreading/max_ray_rate_mean"][()]
+        sw = f["points/sweep"][()]
+        assert st["mean"].shape == (2,) and f["stats/count"][()].tolist() == [2, 2]
+        np.testing.assert_allclose(st["mean"][()], [tops[sw == g].mean() for g in (0, 1)], rtol=1e-14)
+
+
+def test_starts_multiply_the_estimate(tmp_path, run_toral):
+    # `toral check` times one short propagation and counts n of them: the
+    # "spreading s" column for 8 starts is about 8 times the one for 1 (the
+    # fastest of three probes each, to damp timing noise).
+    base = ('[[sweep]]\nname = "a"\nsites = 1024\n[sweep.bond]\nmatrix = [[2, 1], [1, 1]]\n'
+            '[spreading]\nperiods = 200\n')
+    cfg = tmp_path / "e.toml"
+
+    def probe(n):
+        cfg.write_text(base + f"starts = {n}\n")
+        times = []
+        for _ in range(3):
+            lines = run_toral("check", cfg, check=True).stdout.splitlines()
+            head = next(k for k, l in enumerate(lines) if "spreading s" in l)
+            times.append(float(lines[head + 1].split()[-1]))
+        return min(times)
+    ratio = probe(8) / probe(1)
+    assert 3 < ratio < 30, ratio
+
+
 def test_bad_keys_are_located(tmp_path, run_toral):
     base = '[[sweep]]\nname = "a"\nsites = 8\n[sweep.bond]\nmatrix = [[2, 1], [1, 1]]\n[spreading]\n'
     for body, where, what in [("periods = 0\n", "s.toml:7", "spreading.periods"),
                               ("periods = 4\nsite = 8\n", "s.toml:8", "beyond every lattice"),
                               ("periods = 4\ncomponent = \"x\"\n", "s.toml:8", "spreading.component"),
                               ("periods = 4\nstride = 5\n", "s.toml:8", "spreading.stride"),
+                              ("periods = 4\nstarts = 0\n", "s.toml:8", "spreading.starts"),
+                              ("periods = 4\nstarts = 9\n", "s.toml:8", "spreading.starts"),
+                              ("periods = 4\nstarts = \"all\"\n", "s.toml:8", "spreading.starts"),
                               ("site = 1\n", "s.toml:6", "missing 'periods'")]:
         cfg = tmp_path / "s.toml"
         cfg.write_text(base + body)
