@@ -4,10 +4,9 @@
 //
 // Weights: w_i = (q_i^2 + p_i^2) / |v|^2 for site i (sum_i w_i = 1).
 // IPR = sum_i w_i^2: 1 for a vector on one site, 1/L for equal weights; the
-// participation number 1/IPR counts the sites the vector occupies (Pikovsky &
-// Politi, "Lyapunov Exponents", Cambridge 2016, ch. 9 on the localisation of
-// Lyapunov vectors, where the participation/IPR is the measure used; also
-// Bell & Dean's participation ratio in the physics of localisation).
+// participation number 1/IPR counts the sites the vector occupies (common
+// practice in the physics of localisation; for Lyapunov vectors see Pikovsky &
+// Politi, "Lyapunov Exponents", Cambridge 2016).
 //
 // Localisation length xi: for an exponentially localised vector the
 // amplitude decays like |v_i| ~ exp(-d_i / xi), d_i the distance of site i
