@@ -11,11 +11,15 @@ namespace toral {
 const Diagnostic& bands_diagnostic();      // driver/bands.cpp
 const Diagnostic& spreading_diagnostic();  // driver/spreading.cpp
 
+const Diagnostic& vectors_diagnostic();  // driver/vectors.cpp
+
 const std::vector<const Diagnostic*>& diagnostics() {
   static const std::vector<const Diagnostic*> registry = {
       &entanglement_diagnostic(),  // [entanglement] -> /entanglement (driver/entangle.cpp)
       &bands_diagnostic(),         // [bands] -> /bands (driver/bands.cpp)
       &spreading_diagnostic(),     // [spreading] -> /spreading (driver/spreading.cpp)
+
+      &vectors_diagnostic(),  // [vectors] -> /vectors (driver/vectors.cpp)
   };
   return registry;
 }

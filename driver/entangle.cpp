@@ -74,7 +74,7 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
   const toml::table& t = *tab.table;
   const std::int64_t tline = tab.line;
   cx.only_keys(t, P, {"periods", "regions", "offset", "gaussian", "stabilizer_dims", "profile", "profile_stride",
-                      "initial", "radius", "max_precision_bits"});
+                      "initial", "radius", "max_precision_bits", "rate_window"});
   e.enabled = true;
   const std::int64_t Lmax = largest_lattice(c);
 
@@ -125,6 +125,13 @@ EntanglementSpec parse_entanglement(const std::string& text, const std::string& 
     e.max_precision_bits = cx.integer(*mp, P + ".max_precision_bits");
     if (e.max_precision_bits < 64 || e.max_precision_bits > (std::int64_t{1} << 20))
       cx.fail(*mp, P + ".max_precision_bits", "must be in 64..1048576");
+  }
+
+  if (const toml::node* rw = t.get("rate_window")) {
+    e.rate_window = cx.integer(*rw, P + ".rate_window");
+    if (!e.gaussian) cx.fail(*rw, P + ".rate_window", "given but gaussian is false (the local rate is of the Gaussian curves)");
+    if (e.rate_window < 1 || e.rate_window > 1'000'000)
+      cx.fail(*rw, P + ".rate_window", std::to_string(e.rate_window) + " is outside 1..10^6 (periods)");
   }
 
   // ---- regions
@@ -326,6 +333,15 @@ std::vector<Slot> slots(const EntanglementSpec& E) {
     F(field(q + "/saturation_value", Elem::F64, {kR}, "nats", "max over t of S_A(t)"), &V::gauss_saturation_value);
     F(field(q + "/saturation_time", Elem::F64, {kR}, "periods", "first t with S_A(t) >= 0.99 saturation_value"),
       &V::gauss_saturation_time);
+    F(field(q + "/rate", Elem::F64, {kR, kT}, "nats/period",
+            "time-resolved local rate dS_A/dt: the central difference (entropy(t+h) - entropy(t-h)) / (2h), h = "
+            "attribute rate_window of /entanglement, [region][t]; NaN for t < h and t > T - h; compare with "
+            "Lambda_|A| (lyapunov_rate) and region_rate"),
+      &V::gauss_rate);
+    F(field(q + "/rate_radius", Elem::F64, {kR, kT}, "nats/period",
+            "certified radius of rate: (radius(t+h) + radius(t-h)) / (2h); the exact difference quotient of the "
+            "exact curve lies within rate +- rate_radius"),
+      &V::gauss_rate_radius);
   }
   if (!E.stabilizer_dims.empty()) {
     const std::string q = g + "/stabilizer";
@@ -382,6 +398,7 @@ Schema declare_entanglement(const Config& c) {
                           std::string("least-squares slope of S_A(t), and of ln vol(P_A S^t) for region_rate, over t "
                                       "= t0..T, t0 = min(ceil(3T/4), T-1); NaN for T = 0")),
              AttrDecl::of("saturation_fraction", kSaturationFraction),
+             AttrDecl::of("rate_window", e.rate_window),
              AttrDecl::of("violation_tolerance", kViolationTolerance)};
   s.groups.push_back(g);
   if (e.gaussian)
@@ -519,6 +536,8 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
     v.gauss_entropy.assign(nr * nt, kNaN);
     v.gauss_radius.assign(nr * nt, kNaN);
     v.gauss_failures.assign(nr, -1);
+    v.gauss_rate.assign(nr * nt, kNaN);
+    v.gauss_rate_radius.assign(nr * nt, kNaN);
     for (auto* v : {&v.gauss_slope, &v.gauss_slope_over_lyapunov, &v.gauss_slope_over_region_rate,
                     &v.gauss_saturation_value, &v.gauss_saturation_time})
       v->assign(nr, kNaN);
@@ -588,6 +607,14 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
         std::copy(cv.entropy.begin(), cv.entropy.end(), v.gauss_entropy.begin() + static_cast<std::ptrdiff_t>(k * nt));
         std::copy(cv.radius.begin(), cv.radius.end(), v.gauss_radius.begin() + static_cast<std::ptrdiff_t>(k * nt));
         v.gauss_failures[k] = cv.failures;
+        {  // the local rate: central differences over [t - h, t + h]
+          const std::size_t h = static_cast<std::size_t>(E.rate_window);
+          const double w = 2.0 * static_cast<double>(h);
+          for (std::size_t t = h; t + h < nt && t + h < cv.entropy.size(); ++t) {
+            v.gauss_rate[k * nt + t] = (cv.entropy[t + h] - cv.entropy[t - h]) / w;
+            v.gauss_rate_radius[k * nt + t] = (cv.radius[t + h] + cv.radius[t - h]) / w;
+          }
+        }
         const CurveSummary s = summarize_curve(cv.entropy.data(), nt);
         v.gauss_slope[k] = s.slope;
         v.gauss_slope_over_lyapunov[k] = rate_ratio(s.slope, v.ent_lyapunov_rate[k]);

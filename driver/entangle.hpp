@@ -49,6 +49,7 @@ struct EntanglementSpec : DiagnosticSpec {
   std::vector<EntanglementInitial> initial;   // sites not covered: vacuum / position
   double radius = 1e-12;                      // certified radius wanted for every Gaussian S_A(t)
   std::int64_t max_precision_bits = 1 << 15;  // root precision the Gaussian kernel may rise to
+  std::int64_t rate_window = 1;  // h: the local rate dS_A/dt is (S(t+h) - S(t-h)) / (2h)
 };
 
 // The diagnostic itself. Its table: the optional [entanglement]; parse
@@ -81,6 +82,8 @@ struct EntanglementValues {
   std::vector<double> gauss_slope_over_region_rate;  // [region] rate_ratio(slope, region rate)
   std::vector<double> gauss_saturation_value;    // [region] max_t S_A(t)
   std::vector<double> gauss_saturation_time;     // [region] first t with S_A(t) >= 0.99 max
+  std::vector<double> gauss_rate;                // [region][t] (S(t+h) - S(t-h)) / (2h), NaN within h of the ends
+  std::vector<double> gauss_rate_radius;         // [region][t] (radius(t+h) + radius(t-h)) / (2h)
   std::vector<double> stab_entropy;              // [N][region][t]
   std::vector<double> stab_slope, stab_slope_over_lyapunov, stab_slope_over_lightcone;  // [N][region]
   std::vector<double> stab_saturation_value, stab_saturation_time;                      // [N][region]

@@ -148,6 +148,8 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
       double lam, err2, se, drift;  // err2: err_j^2 without the neighbour term
       double err = 0.0;
       std::string src;
+      std::size_t cocycle = 0;  // index into cs
+      int column = 0;           // column of the cocycle's frame
     };
     std::vector<Item> items;
     constexpr double kEps = std::numeric_limits<double>::epsilon();
@@ -166,8 +168,8 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
       const double d = (std::log1p(h / tau) + std::log1p(-h / (tau + Tm))) / h;
       if (d > 0) jordan = std::max(1.0, std::log1p(Tm / tau) / Tm / d);
     }
-    for (auto& cp : cs) {
-      Cocycle& c = *cp;
+    for (std::size_t ci = 0; ci < cs.size(); ++ci) {
+      Cocycle& c = *cs[ci];
       for (int j = 0; j < c.k; ++j) {
         const std::size_t jj = static_cast<std::size_t>(j);
         const double lam = c.total[jj] / static_cast<double>(T);
@@ -186,7 +188,7 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
         const double err2 = se * se + bias * bias + rounding * rounding;
         if (!std::isfinite(lam) || !std::isfinite(err2))
           throw SolverError("tangent_top: non-finite exponent (a tangent vector collapsed)");
-        items.push_back({lam, err2, se, drift, 0.0, operator_name(c.op)});
+        items.push_back({lam, err2, se, drift, 0.0, operator_name(c.op), ci, j});
       }
     }
     std::stable_sort(items.begin(), items.end(), [](const Item& a, const Item& b) { return a.lam > b.lam; });
@@ -210,6 +212,43 @@ TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptio
       res.drift.push_back(items[i].drift);
       res.source.push_back(items[i].src);
       res.max_error = std::max(res.max_error, items[i].err);
+    }
+    res.window_means.assign(static_cast<std::size_t>(nwin), std::vector<double>(K));
+    for (std::size_t i = 0; i < K; ++i)
+      for (int w = 0; w < nwin; ++w)
+        res.window_means[static_cast<std::size_t>(w)][i] =
+            cs[items[i].cocycle]->means[static_cast<std::size_t>(w)][static_cast<std::size_t>(items[i].column)];
+    if (o.keep_vectors) {
+      // Collective: every rank sorted the same R diagonals (BVOrthogonalize
+      // returns R on every rank), so the loop is the same everywhere.
+      int rank = 0;
+      MPI_Comm_rank(comm, &rank);
+      for (std::size_t i = 0; i < K; ++i) {
+        const Cocycle& c = *cs[items[i].cocycle];
+        Vec col, all;
+        VecScatter sc;
+        TORAL_PCALL(BVGetColumn(c.V.get(), items[i].column, &col));
+        TORAL_PCALL(VecScatterCreateToZero(col, &sc, &all));
+        TORAL_PCALL(VecScatterBegin(sc, col, all, INSERT_VALUES, SCATTER_FORWARD));
+        TORAL_PCALL(VecScatterEnd(sc, col, all, INSERT_VALUES, SCATTER_FORWARD));
+        if (rank == 0) {
+          std::vector<double> v(static_cast<std::size_t>(2 * g.L), 0.0);
+          const PetscScalar* a;
+          PetscInt n = 0;
+          TORAL_PCALL(VecGetSize(all, &n));
+          TORAL_PCALL(VecGetArrayRead(all, &a));
+          for (PetscInt r = 0; r < n; ++r) {
+            std::int64_t x = c.A.coordinate(r);
+            if (c.op == Operator::MInverseT) x += g.L;  // the momentum block: p_i = L + i
+            v[static_cast<std::size_t>(x)] = a[r];
+          }
+          TORAL_PCALL(VecRestoreArrayRead(all, &a));
+          res.vectors.push_back(std::move(v));
+        }
+        TORAL_PCALL(VecScatterDestroy(&sc));
+        TORAL_PCALL(VecDestroy(&all));
+        TORAL_PCALL(BVRestoreColumn(c.V.get(), items[i].column, &col));
+      }
     }
     res.periods = T;
     res.windows = nwin;

@@ -104,6 +104,9 @@ struct TangentOptions {
   std::uint64_t seed = 0;         // initial vectors
   std::int64_t t0 = 0;            // period index of the first period applied
   std::string options_prefix = "toral_tangent_";
+  // Gather the final orthonormal tangent vector of each of the top k
+  // exponents on rank 0 (TangentResult::vectors); off by default.
+  bool keep_vectors = false;
 };
 
 struct TangentResult {
@@ -122,6 +125,16 @@ struct TangentResult {
   std::int64_t periods = 0;       // measured periods actually used (windows * window length)
   int windows = 0;
   double wall_seconds = 0.0;
+  // The window means m_w of each of the top k exponents, [window][j], in the
+  // order of `exponents`: finite-time exponents over the window length
+  // periods / windows.
+  std::vector<std::vector<double>> window_means;
+  // keep_vectors only, on rank 0 (empty elsewhere): the final tangent vector
+  // (column j of the orthonormal frame Q after the last period) of each of
+  // the top k exponents, by toral coordinate (q_i = i, p_i = L + i; 2L
+  // entries). For position-class circuits a vector of the M-cocycle has its
+  // p part 0 and one of the M^-T-cocycle its q part 0. Unit norm.
+  std::vector<std::vector<double>> vectors;
 };
 
 TangentResult tangent_top(MPI_Comm comm, const GateSource& g, const TangentOptions& o);

@@ -353,6 +353,44 @@ def test_gaussian_slope_is_the_region_rate(runs):
     assert d["units"]["entanglement/region_rate"] == "nats/period"
 
 
+def test_local_rate_is_the_central_difference_of_the_stored_curve(runs):
+    # numpy differences (reference library) of the stored certified curve:
+    # rate(t) = (S(t+h) - S(t-h)) / (2h), h = the attribute rate_window (1 by
+    # default), NaN within h of the ends; its radius is the sum of the two
+    # radii over 2h, so the exact difference quotient lies within it.
+    _, out = runs
+    path = out["position"][1]
+    with h5py.File(path, "r") as f:
+        h = int(f["entanglement"].attrs["rate_window"])
+        assert h == 1
+        S, r = f["entanglement/gaussian/entropy"][()], f["entanglement/gaussian/radius"][()]
+        rate, rad = f["entanglement/gaussian/rate"][()], f["entanglement/gaussian/rate_radius"][()]
+        assert f["entanglement/gaussian/rate"].attrs["units"] == "nats/period"
+    assert rate.shape == S.shape
+    want = np.full_like(S, np.nan)
+    want[..., h:-h] = (S[..., 2 * h:] - S[..., :-2 * h]) / (2 * h)
+    np.testing.assert_allclose(rate, want, rtol=1e-15, atol=1e-15, equal_nan=True)
+    want_r = np.full_like(r, np.nan)
+    want_r[..., h:-h] = (r[..., 2 * h:] + r[..., :-2 * h]) / (2 * h)
+    np.testing.assert_allclose(rad, want_r, rtol=1e-15, equal_nan=True)
+    assert np.isnan(rate[..., :h]).all() and np.isnan(rate[..., -h:]).all()
+    assert np.isfinite(rate[..., h:-h]).sum() > 100
+
+
+def test_local_rate_window_is_a_key(tmp_path, run_toral):
+    # h = 3 on the cat chain: the central difference over [t-3, t+3] of the
+    # stored curve (numpy), stated in the group attribute.
+    cfg = write(tmp_path, '[[sweep]]\nsites = 8\nboundary = "open"\n[sweep.bond]\nmatrix = [[2,1],[1,1]]\n\n'
+                '[entanglement]\nperiods = 12\nregions = [2]\noffset = 3\nrate_window = 3\n')
+    out = tmp_path / "h.h5"
+    run_toral("run", cfg, "-o", out, "-q", check=True)
+    with h5py.File(out, "r") as f:
+        assert f["entanglement"].attrs["rate_window"] == 3
+        S, rate = f["entanglement/gaussian/entropy"][0, 0], f["entanglement/gaussian/rate"][0, 0]
+    np.testing.assert_allclose(rate[3:-3], (S[6:] - S[:-6]) / 6, rtol=1e-15)
+    assert np.isnan(rate[:3]).all() and np.isnan(rate[-3:]).all()
+
+
 def test_shards_and_merge_keep_entanglement(runs, run_toral):
     # Shards are read back (read_results) and rewritten by `merge`: the
     # /entanglement datasets, the NaN padding of the profile included, survive.
@@ -367,8 +405,8 @@ def test_shards_and_merge_keep_entanglement(runs, run_toral):
     run_toral("merge", merged, *shards, check=True)
     a, b = load(h5), load(merged)
     keys = [k for k in a if k.startswith("entanglement/") and k != "entanglement/wall_time"]
-    # 26 datasets and the axes region, site_slot and stabilizer/cut (layout version 3)
-    assert len(keys) == 29 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
+    # 28 datasets (gaussian/rate and rate_radius included) and the axes region, site_slot and stabilizer/cut
+    assert len(keys) == 31 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
     for k in keys:
         np.testing.assert_array_equal(a[k], b[k], err_msg=k)
 
@@ -383,6 +421,7 @@ BAD = {
     "unknown_key": ("period = 3\n", "c.toml:9: entanglement.period: unknown key"),
     "bad_radius": ("radius = 0.0\n", "c.toml:9: entanglement.radius: must be in (0, 1e-3]"),
     "bad_precision": ("max_precision_bits = 32\n", "c.toml:9: entanglement.max_precision_bits: must be in 64..1048576"),
+    "bad_rate_window": ("rate_window = 0\n", "c.toml:9: entanglement.rate_window: 0 is outside 1..10^6"),
 }
 
 

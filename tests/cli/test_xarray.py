@@ -59,6 +59,10 @@ grid = 9
 [spreading]
 periods = 12
 stride = 4
+
+[vectors]
+count = 2
+windows = 2
 """
 NPOINTS = 2 * 2 * 2 * 3 + 3
 
@@ -68,6 +72,7 @@ EXPECTED_GROUPS = {
     "/limit", "/limit/histogram", "/bounds", "/entanglement", "/entanglement/gaussian",
     "/entanglement/stabilizer", "/stats", "/stats/lambda_max", "/stats/hilbert_cap",
     "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction", "/spreading",
+    "/vectors", "/stats/vectors_exponent",
 }
 TIMING = {"/points/wall_time", "/chaos/solver/wall_time", "/entanglement/wall_time"}
 
