@@ -10,16 +10,16 @@ namespace toral {
 
 const Diagnostic& bands_diagnostic();      // driver/bands.cpp
 const Diagnostic& spreading_diagnostic();  // driver/spreading.cpp
-
-const Diagnostic& vectors_diagnostic();  // driver/vectors.cpp
+const Diagnostic& vectors_diagnostic();    // driver/vectors.cpp
+const Diagnostic& rays_diagnostic();       // driver/rays.cpp
 
 const std::vector<const Diagnostic*>& diagnostics() {
   static const std::vector<const Diagnostic*> registry = {
       &entanglement_diagnostic(),  // [entanglement] -> /entanglement (driver/entangle.cpp)
       &bands_diagnostic(),         // [bands] -> /bands (driver/bands.cpp)
       &spreading_diagnostic(),     // [spreading] -> /spreading (driver/spreading.cpp)
-
-      &vectors_diagnostic(),  // [vectors] -> /vectors (driver/vectors.cpp)
+      &vectors_diagnostic(),       // [vectors] -> /vectors (driver/vectors.cpp)
+      &rays_diagnostic(),          // [rays] -> /rays (driver/rays.cpp)
   };
   return registry;
 }

@@ -414,7 +414,7 @@ VelocityExponents velocity_exponents(const Circuit& c, bool momentum, const std:
   out.v = v;
   // cells: u in [-s_plus, s_minus]; lambda(-s_plus) = edge_plus, lambda(s_minus) = edge_minus
   const double ulo = -cone.s_plus, uhi = cone.s_minus;
-  out.cone_left = 2 * ulo;
+  out.cone_left = 2 * ulo + 0.0;  // + 0.0: no -0
   out.cone_right = 2 * uhi;
   out.edge_left = cone.edge_plus;
   out.edge_right = cone.edge_minus;
@@ -489,7 +489,7 @@ VelocityExponents velocity_exponents(const Circuit& c, bool momentum, const std:
   front(-1.0, cone.edge_minus, uhi, sr, er);
   front(+1.0, cone.edge_plus, -ulo, sl, el);
   out.butterfly_right = sr;
-  out.butterfly_left = -sl;
+  out.butterfly_left = -sl + 0.0;
   out.butterfly_error = std::max(er, el);
   return out;
 }

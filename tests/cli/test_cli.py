@@ -132,6 +132,9 @@ profile = true
 [spreading]
 periods = 5
 starts = 3
+
+[rays]
+velocities = 9
 """
 TIMINGS = ("points/wall_time", "chaos/solver/wall_time", "entanglement/wall_time")
 
@@ -146,6 +149,7 @@ def test_one_and_two_ranks_write_identical_datasets(tmp_path, run_toral):
     assert sorted(da) == sorted(db) and "entanglement/gaussian/entropy" in da
     assert {"spreading/ray_rate_mean", "spreading/ray_rate_se", "spreading/ray_count", "spreading/starts",
             "spreading/max_ray_rate_mean"} <= da.keys()
+    assert {"rays/lyapunov", "rays/butterfly_right", "rays/peak", "rays/absolute"} <= da.keys()
     for name in da:
         if name in TIMINGS:
             continue

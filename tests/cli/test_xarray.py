@@ -63,6 +63,9 @@ stride = 4
 [vectors]
 count = 2
 windows = 2
+
+[rays]
+velocities = 9
 """
 NPOINTS = 2 * 2 * 2 * 3 + 3
 
@@ -72,7 +75,7 @@ EXPECTED_GROUPS = {
     "/limit", "/limit/histogram", "/bounds", "/entanglement", "/entanglement/gaussian",
     "/entanglement/stabilizer", "/stats", "/stats/lambda_max", "/stats/hilbert_cap",
     "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction", "/spreading",
-    "/vectors", "/stats/vectors_exponent",
+    "/vectors", "/stats/vectors_exponent", "/rays", "/stats/rays_peak",
 }
 TIMING = {"/points/wall_time", "/chaos/solver/wall_time", "/entanglement/wall_time"}
 
