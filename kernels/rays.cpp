@@ -89,12 +89,14 @@ class Evaluator {
     if (n_ == 2) {
       const cd t = 0.5 * (m[0] + m[3]);
       const cd d = m[0] * m[3] - m[1] * m[2];
-      const cd disc = t * t - d;
-      const cd sq = std::sqrt(disc);
-      const double rho = std::max(std::abs(t + sq), std::abs(t - sq));
-      double e = 8 * kEps * (norm + 1.0) / rho;
-      if (std::abs(disc) < 1e-8 * (std::norm(t) + std::abs(d))) e += std::sqrt(kEps) * (norm + 1.0) / rho;
-      if (err) *err = e;
+      const cd sq = std::sqrt(t * t - d);
+      const cd r1 = t + sq, r2 = t - sq;
+      const double rho = std::max(std::abs(r1), std::abs(r2));
+      // first-order rounding of a simple root, (dp)^(1/2) for a (near-)double one
+      const double dp = 8 * kEps * (norm * norm + norm * rho + rho * rho);
+      const double sep = std::abs(r1 - r2);
+      const double e = sep > 1e-3 * rho ? dp / (sep * rho) : std::sqrt(dp) / rho;
+      if (err) *err = std::min(e, 1.0);
       return std::log(rho);
     }
     return top_root(m, norm, err);
@@ -221,13 +223,12 @@ double Evaluator::top_root(const cd* m, double norm, double* err) {
   int top = 0;
   for (int j = 1; j < 4; ++j)
     if (std::abs(x[j]) > std::abs(x[top])) top = j;
-  cd d1, d2;
+  cd d1;
   for (int it = 0; it < 3; ++it) {  // Newton polish of the top root
     const cd p = poly(x[top], &d1, nullptr);
     if (d1 == 0.0) break;
     x[top] -= p / d1;
   }
-  poly(x[top], &d1, &d2);
   const double rho = std::abs(x[top]);
   warm_ok_ = std::isfinite(rho);
   for (int j = 0; j < 4 && warm_ok_; ++j)  // distinct, finite starts for the next call
@@ -236,8 +237,18 @@ double Evaluator::top_root(const cd* m, double norm, double* err) {
   double dp = 0;  // rounding of the coefficients (Faddeev-LeVerrier: ~ n eps ||M||^j each)
   for (int j = 0; j <= 4; ++j) dp += std::pow(norm, j) * std::pow(rho, 4 - j);
   dp *= 64 * kEps;
-  double e = dp / (std::abs(d1) * rho + 1e-300);
-  if (!(e < 1e-6)) e = std::sqrt(2 * dp / (std::abs(d2) + 1e-300)) / rho + e * 0;
+  // A cluster of m roots at the top moves by (dp / prod_{others} |x_top - x_l|)^(1/m)
+  // (m = 1: the first-order estimate; m = 4: eps^(1/4) at a fourfold root).
+  int mult = 0;
+  double prod = 1;
+  for (int l = 0; l < 4; ++l) {
+    const double dl = std::abs(x[l] - x[top]);
+    if (dl < 1e-3 * rho)
+      ++mult;
+    else
+      prod *= dl;
+  }
+  const double e = std::pow(dp / prod, 1.0 / mult) / rho;
   if (err) *err = std::min(e, 1.0);
   return std::log(rho);
 }

@@ -47,6 +47,9 @@ stabilizer_dims = [2]
 
 [bands]
 grid = 9
+
+[rays]
+velocities = 9
 """
 NPOINTS = 3 * 10 + 2 * 2
 

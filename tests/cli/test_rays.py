@@ -175,3 +175,24 @@ def test_bad_values(tmp_path, run_toral):
         assert r.returncode == 2
         err = r.stderr.strip().splitlines()
         assert len(err) == 1 and "bad.toml:" in err[0] and key in err[0], err
+
+
+def test_open_chain_eigenvalues_tend_to_the_absolute_rate(tmp_path, run_toral):
+    # An asymmetric general gate: its peak sits at v != 0, so lambda(0) <
+    # max_v lambda(v). The largest eigenvalue exponent of a long open chain
+    # tends to lambda(0), not to the bulk lambda_max (for banded Toeplitz
+    # matrices the finite sections' spectral radius tends to min over r of
+    # max_{|z| = r} |symbol|, Schmidt & Spitzer, Math. Scand. 8 (1960) 15; here
+    # measured with toral's dense LAPACK spectrum, from memory for the theorem).
+    gate = 'kind = "symplectic"\nmatrix = [[0, 3, 2, 0], [-1, 3, 2, -1], [0, 1, 1, 0], [2, 0, 0, 3]]'
+    gaps = []
+    for L in (64, 256):
+        cfg = tmp_path / f"o{L}.toml"
+        cfg.write_text(sweep("asym", L, "open", gate) + "[rays]\n")
+        rec = json.loads(run_toral("point", cfg, "--index", 0, "--json", check=True).stdout)
+        lam0, peak = rec["/rays/absolute"], rec["/rays/peak"]
+        assert peak - lam0 > 0.02 and abs(rec["/rays/peak_velocity"]) > 0.1
+        eig = rec["/chaos/lambda_max"]
+        assert abs(eig - lam0) < abs(eig - peak)
+        gaps.append(abs(eig - lam0))
+    assert gaps[1] < gaps[0] / 4 and gaps[1] < 1e-3, gaps
