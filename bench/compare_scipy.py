@@ -25,6 +25,8 @@ import scipy
 import scipy.io
 import scipy.sparse.linalg as sla
 
+from bench_common import env
+
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 
 # scipy's eigs on the L = 1e6 disordered ring where the project's targets were set (its requirements, issue 3).
@@ -63,11 +65,6 @@ tolerance = 1e-12
 ranks_per_point = {ranks}
 """
 
-
-def env():
-    e = dict(os.environ)
-    e.update(OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
-    return e
 
 
 def toral_run(toral, text, work, name, ranks):

@@ -32,6 +32,8 @@ import mpmath as mp
 import numpy as np
 import scipy.io
 
+from bench_common import env
+
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 REGION = 8  # sites 0..7
 
@@ -67,11 +69,6 @@ b = 1
 """),
 ]
 
-
-def env():
-    e = dict(os.environ)
-    e.update(OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
-    return e
 
 
 def entanglement_table(T):

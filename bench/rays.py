@@ -20,9 +20,7 @@ Run: /usr/bin/python3 bench/rays.py [--toral build/toral]
 import argparse
 import json
 import math
-import os
 import pathlib
-import platform
 import subprocess
 import sys
 import tempfile
@@ -31,6 +29,8 @@ import time
 import numpy as np
 import scipy.io
 import scipy.optimize
+
+from bench_common import env, machine
 
 ROOT = pathlib.Path(__file__).resolve().parent.parent
 
@@ -41,11 +41,6 @@ GATES = [
      'kind = "symplectic"\nmatrix = [[0, 3, 2, 0], [-1, 3, 2, -1], [0, 1, 1, 0], [2, 0, 0, 3]]', False),
 ]
 
-
-def env():
-    e = dict(os.environ)
-    e.update(OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
-    return e
 
 
 def config(boundary, bond, L, rays):
@@ -101,15 +96,6 @@ def numpy_lambda(B, v):
         out.append(r.fun)
     return np.array(out)
 
-
-def machine():
-    cpu = platform.processor() or platform.machine()
-    try:
-        info = pathlib.Path("/proc/cpuinfo").read_text()
-        cpu = next(l.split(":", 1)[1].strip() for l in info.splitlines() if l.startswith("model name"))
-    except (OSError, StopIteration):
-        pass
-    return f"{cpu}, {os.cpu_count()} cores, Python {platform.python_version()}"
 
 
 def main():

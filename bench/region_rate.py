@@ -33,6 +33,8 @@ import mpmath
 import numpy as np
 import scipy.io
 
+from bench_common import env
+
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 
 COUPLED = """[[sweep]]
@@ -69,11 +71,6 @@ CASES = [
     ("shear ring + cat(3,1) kick, L = 64", SHEAR.format(L=64) + KICK, 64, [[0, 1, 2, 3, 4, 5, 6, 7]]),
 ]
 
-
-def env():
-    e = dict(os.environ)
-    e.update(OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
-    return e
 
 
 def window(T):

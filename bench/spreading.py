@@ -23,9 +23,7 @@ Run: /usr/bin/python3 bench/spreading.py [--toral build/toral] [--periods 2000] 
 import argparse
 import json
 import math
-import os
 import pathlib
-import platform
 import subprocess
 import sys
 import tempfile
@@ -33,6 +31,8 @@ import time
 
 import numpy as np
 import scipy.io
+
+from bench_common import env, machine
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 
@@ -72,11 +72,6 @@ b = 4
 """, CHAIN),
 ]
 
-
-def env():
-    e = dict(os.environ)
-    e.update(OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1", OMPI_MCA_rmaps_base_oversubscribe="1")
-    return e
 
 
 def spreading_table(T):
@@ -128,15 +123,6 @@ def python_profile(mtx, L, start, T, stride):
     bits = max(abs(v).bit_length() for v in x)
     return times, np.array(out), bits, wall
 
-
-def machine():
-    cpu = platform.processor() or platform.machine()
-    try:
-        info = pathlib.Path("/proc/cpuinfo").read_text()
-        cpu = next(l.split(":", 1)[1].strip() for l in info.splitlines() if l.startswith("model name"))
-    except (OSError, StopIteration):
-        pass
-    return f"{cpu}, {os.cpu_count()} cores, Python {platform.python_version()}"
 
 
 def main():
