@@ -337,24 +337,25 @@ Cone exact_cone(const BlochSymbol& sym) {
 }
 
 // min over mu of f(mu) = Lambda(mu) + mu u for u strictly inside the cone.
-Rate legendre(Evaluator& ev, double u, double edge_value_lo, double edge_value_hi) {
+// `hint`: a guess of the minimiser (the previous velocity's), updated on return.
+Rate legendre(Evaluator& ev, double u, double edge_value_lo, double edge_value_hi, double& hint) {
   auto fprime = [&](double mu, Rate* r, double* derr) {
     *r = ev.weighted(mu);
     return ev.slope(mu, r->k, derr) + u;
   };
   Rate ra, rb;
   double ea = 0, eb = 0;
-  double a = -1, b = 1;
+  double a = hint - 0.25, b = hint + 0.25, w = 0.5;
   double fa = fprime(a, &ra, &ea), fb = fprime(b, &rb, &eb);
   while (fa > 0) {  // the minimiser is left of a
     b = a, fb = fa, rb = ra, eb = ea;
-    a *= 2;
+    a -= w, w *= 2;
     if (a < -kMuLimit) return {edge_value_lo, std::fabs(ra.value + b * u - edge_value_lo) + ra.err, 0};
     fa = fprime(a, &ra, &ea);
   }
   while (fb < 0) {
     a = b, fa = fb, ra = rb, ea = eb;
-    b *= 2;
+    b += w, w *= 2;
     if (b > kMuLimit) return {edge_value_hi, std::fabs(rb.value + a * u - edge_value_hi) + rb.err, 0};
     fb = fprime(b, &rb, &eb);
   }
@@ -396,6 +397,7 @@ Rate legendre(Evaluator& ev, double u, double edge_value_lo, double edge_value_h
     lower = Fa + fa * (x - a);
   }
   const double up = std::min(Fa, Fb);
+  hint = Fa <= Fb ? a : b;
   Rate out;
   out.value = up;
   out.err = (up - lower) + std::max(ra.err, rb.err) + (ea + eb) * (b - a);
@@ -429,11 +431,12 @@ VelocityExponents velocity_exponents(const Circuit& c, bool momentum, const std:
   out.cone_right = 2 * uhi;
   out.edge_left = cone.edge_plus;
   out.edge_right = cone.edge_minus;
+  double hint = 0;  // the minimiser moves continuously with the velocity
   auto lambda_at = [&](double u) -> Rate {
     if (u < ulo - 1e-12 || u > uhi + 1e-12) return {-kInf, 0, 0};
     if (std::fabs(u - ulo) <= 1e-12) return {cone.edge_plus, 1e-12, 0};
     if (std::fabs(u - uhi) <= 1e-12) return {cone.edge_minus, 1e-12, 0};
-    return legendre(ev, u, cone.edge_minus, cone.edge_plus);
+    return legendre(ev, u, cone.edge_minus, cone.edge_plus, hint);
   };
   for (double x : v) {
     const Rate r = lambda_at(0.5 * x);
