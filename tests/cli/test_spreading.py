@@ -242,26 +242,6 @@ def test_start_average_equals_numpy_over_python_propagations(tmp_path, run_toral
         np.testing.assert_allclose(st["mean"][()], [tops[sw == g].mean() for g in (0, 1)], rtol=1e-14)
 
 
-def test_starts_multiply_the_estimate(tmp_path, run_toral):
-    # `toral check` times one short propagation and counts n of them: the
-    # "spreading s" column for 8 starts is about 8 times the one for 1 (the
-    # fastest of three probes each, to damp timing noise).
-    base = ('[[sweep]]\nname = "a"\nsites = 1024\n[sweep.bond]\nmatrix = [[2, 1], [1, 1]]\n'
-            '[spreading]\nperiods = 200\n')
-    cfg = tmp_path / "e.toml"
-
-    def probe(n):
-        cfg.write_text(base + f"starts = {n}\n")
-        times = []
-        for _ in range(3):
-            lines = run_toral("check", cfg, check=True).stdout.splitlines()
-            head = next(k for k, l in enumerate(lines) if "spreading s" in l)
-            times.append(float(lines[head + 1].split()[-1]))
-        return min(times)
-    ratio = probe(8) / probe(1)
-    assert 3 < ratio < 30, ratio
-
-
 def test_bad_keys_are_located(tmp_path, run_toral):
     base = '[[sweep]]\nname = "a"\nsites = 8\n[sweep.bond]\nmatrix = [[2, 1], [1, 1]]\n[spreading]\n'
     for body, where, what in [("periods = 0\n", "s.toml:7", "spreading.periods"),
