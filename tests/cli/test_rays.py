@@ -196,3 +196,24 @@ def test_open_chain_eigenvalues_tend_to_the_absolute_rate(tmp_path, run_toral):
         assert abs(eig - lam0) < abs(eig - peak)
         gaps.append(abs(eig - lam0))
     assert gaps[1] < gaps[0] / 4 and gaps[1] < 1e-3, gaps
+
+
+def test_unipotent_open_chain_regions_grow_at_the_ring_rate(tmp_path, run_toral):
+    # The open chain's eigenvalue exponents are all 0, yet the exact Gaussian
+    # entropy of bulk blocks, while the backward light cone (2 sites per
+    # period each way) stays inside the chain, grows exactly as on the ring of
+    # the same gates (the rows of S^t for the region are the same integers),
+    # i.e. at the ring's rate (within 2 %, the requirement; here equal).
+    slopes = {}
+    for b in ("open", "periodic"):
+        cfg = tmp_path / f"{b}.toml"
+        cfg.write_text(sweep("shear", 128, b, SHEAR) + '[spectrum]\nmethod = "dense"\n'
+                       "[entanglement]\nperiods = 24\nregions = [4, 8]\noffset = 60\n")
+        rec = json.loads(run_toral("point", cfg, "--index", 0, "--json", check=True).stdout)
+        slopes[b] = np.array(rec["/entanglement/gaussian/slope"])
+        if b == "open":
+            assert rec["/chaos/lambda_max"] == 0 and rec["/chaos/zero_certified"] == 1
+        else:
+            assert rec["/chaos/lambda_max"] == pytest.approx(rec["/limit/lambda_max"], abs=1e-9)
+    assert (slopes["open"] > 20).all()
+    np.testing.assert_allclose(slopes["open"], slopes["periodic"], rtol=0.02)
