@@ -15,6 +15,7 @@
 #include <set>
 #include <sstream>
 
+#include "bloch.hpp"
 #include "bounds.hpp"
 #include "config.hpp"
 #include "region_rate.hpp"
@@ -306,6 +307,18 @@ std::vector<Slot> slots(const EntanglementSpec& E) {
           "position; a rate, not a bound; NaN for |A| = L and for circuits redrawn every period",
           "entanglement_region_rate"),
     &V::ent_region_rate);
+  F(field(g + "/transient_rate", Elem::F64, {kR}, "nats/period",
+          "open chains of translation-invariant gates repeated every period: Lambda_|A| of the periodic ring of the "
+          "same gates and L (Bloch spectrum), the rate a bulk region grows at while its backward light cone stays "
+          "inside the chain (t < transient_window: the region's rows of S^t are then the ring's integers), however "
+          "small the open chain's eigenvalue exponents (docs/rays.md); a rate, not a bound; NaN for rings (use "
+          "lyapunov_rate), disordered or redrawn circuits (see /vectors) and |A| = L",
+          "entanglement_transient_rate"),
+    &V::ent_transient_rate);
+  I(field(g + "/transient_window", Elem::I64, {kR}, "periods",
+          "open chains: floor(d / 2), d = the region's distance (sites) to the nearer end: the periods before its "
+          "backward light cone (2 sites per period each way) reaches an end; -1 for rings"),
+    &V::ent_transient_window);
   if (E.gaussian) {
     const std::string q = g + "/gaussian";
     F(field(q + "/entropy", Elem::F64, {kR, kT}, "nats", "midpoint of the certified von Neumann entropy S_A(t), [region][t]"),
@@ -330,6 +343,11 @@ std::vector<Slot> slots(const EntanglementSpec& E) {
             "to 1 for every region (S_A(t) - ln vol(P_A S^t) stays bounded)",
             "gaussian_slope_over_region_rate"),
       &V::gauss_slope_over_region_rate);
+    F(field(q + "/slope_over_transient", Elem::F64, {kR}, "1",
+            "slope / transient_rate (/entanglement/transient_rate) by the rule for ratios over rates: finite on open "
+            "chains whose eigenvalue exponents vanish; meaningful when the slope window ends before transient_window",
+            "gaussian_slope_over_transient"),
+      &V::gauss_slope_over_transient);
     F(field(q + "/saturation_value", Elem::F64, {kR}, "nats", "max over t of S_A(t)"), &V::gauss_saturation_value);
     F(field(q + "/saturation_time", Elem::F64, {kR}, "periods", "first t with S_A(t) >= 0.99 saturation_value"),
       &V::gauss_saturation_time);
@@ -358,6 +376,10 @@ std::vector<Slot> slots(const EntanglementSpec& E) {
     F(field(q + "/slope_over_lightcone", Elem::F64, {kN, kR}, "1",
             "slope / lightcone_rate (at most 1: the light cone is a bound)", "stabilizer_slope_over_lightcone"),
       &V::stab_slope_over_lightcone);
+    F(field(q + "/slope_over_transient", Elem::F64, {kN, kR}, "1",
+            "slope / transient_rate (/entanglement/transient_rate), by the rule for ratios over rates",
+            "stabilizer_slope_over_transient"),
+      &V::stab_slope_over_transient);
     F(field(q + "/saturation_value", Elem::F64, {kN, kR}, "nats", "max over t of S_A(t)", "stabilizer_saturation_value"),
       &V::stab_saturation_value);
     F(field(q + "/saturation_time", Elem::F64, {kN, kR}, "periods", "first t with S_A(t) >= 0.99 saturation_value",
@@ -532,6 +554,8 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
   v.ent_cuts.assign(nr, -1);
   v.ent_lyapunov_rate.assign(nr, kNaN);
   v.ent_region_rate.assign(nr, kNaN);
+  v.ent_transient_rate.assign(nr, kNaN);
+  v.ent_transient_window.assign(nr, -1);
   if (E.gaussian) {
     v.gauss_entropy.assign(nr * nt, kNaN);
     v.gauss_radius.assign(nr * nt, kNaN);
@@ -539,12 +563,14 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
     v.gauss_rate.assign(nr * nt, kNaN);
     v.gauss_rate_radius.assign(nr * nt, kNaN);
     for (auto* v : {&v.gauss_slope, &v.gauss_slope_over_lyapunov, &v.gauss_slope_over_region_rate,
+                    &v.gauss_slope_over_transient,
                     &v.gauss_saturation_value, &v.gauss_saturation_time})
       v->assign(nr, kNaN);
   }
   if (nn > 0) {
     v.stab_entropy.assign(nn * nr * nt, kNaN);
     for (auto* v : {&v.stab_slope, &v.stab_slope_over_lyapunov, &v.stab_slope_over_lightcone,
+                    &v.stab_slope_over_transient,
                     &v.stab_saturation_value, &v.stab_saturation_time, &v.stab_cap, &v.stab_lightcone_rate})
       v->assign(nn * nr, kNaN);
     v.stab_violations.assign(nn * nr, -1);
@@ -576,6 +602,23 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
     }
     circ = materialize(gs);
     circ.validate();
+    if (gs.boundary == Boundary::Open) {
+      for (std::size_t k = 0; k < nr; ++k)
+        if (fits[k]) {
+          const auto& sites = E.regions[k].sites;
+          v.ent_transient_window[k] = std::min(sites.front(), L - 1 - sites.back()) / 2;
+        }
+      if (gs.translation_invariant) {  // the ring of the same gates: its Bloch spectrum
+        GateSource ring = gs;
+        ring.boundary = Boundary::Periodic;
+        ring.L = L + (L % 2);
+        const Spectrum sp = bloch_spectrum(materialize(ring));
+        for (std::size_t k = 0; k < nr; ++k)
+          if (fits[k])
+            v.ent_transient_rate[k] =
+                lyapunov_rate(sp.exponents, ring.L, static_cast<std::int64_t>(E.regions[k].sites.size()));
+      }
+    }
   } catch (const std::exception& ex) {
     note(ex.what());
     finish();
@@ -619,6 +662,7 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
         v.gauss_slope[k] = s.slope;
         v.gauss_slope_over_lyapunov[k] = rate_ratio(s.slope, v.ent_lyapunov_rate[k]);
         v.gauss_slope_over_region_rate[k] = rate_ratio(s.slope, v.ent_region_rate[k]);
+        v.gauss_slope_over_transient[k] = rate_ratio(s.slope, v.ent_transient_rate[k]);
         v.gauss_saturation_value[k] = s.saturation_value;
         v.gauss_saturation_time[k] = s.saturation_time;
         if (cv.failures > 0) {
@@ -656,6 +700,7 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
           v.stab_slope[q] = s.slope;
           v.stab_slope_over_lyapunov[q] = rate_ratio(s.slope, v.ent_lyapunov_rate[k]);
           v.stab_slope_over_lightcone[q] = rate_ratio(s.slope, rate);
+          v.stab_slope_over_transient[q] = rate_ratio(s.slope, v.ent_transient_rate[k]);
           v.stab_saturation_value[q] = s.saturation_value;
           v.stab_saturation_time[q] = s.saturation_time;
           v.stab_violations[q] = bound_violations(S.data(), nt, cap, rate, kViolationTolerance);
@@ -834,6 +879,18 @@ void print_values(std::ostream& os, const EntanglementSpec& E, const Entanglemen
       os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(6) << iat(v.ent_cuts, k)
          << std::setw(12) << num(at(v.ent_lyapunov_rate, k)) << std::setw(12) << num(at(v.ent_region_rate, k))
          << "\n";
+  }
+  bool transient = false;
+  for (std::size_t k = 0; k < nr; ++k) transient = transient || std::isfinite(at(v.ent_transient_rate, k));
+  if (transient) {
+    os << "    open chain: its eigenvalue exponents miss what travels; a bulk region grows at the ring's rate while\n"
+       << "    its backward light cone stays inside (t < window; docs/rays.md):\n"
+       << "    transient" << std::setw(7) << "|A|" << std::setw(12) << "rate" << std::setw(8) << "window"
+       << std::setw(12) << "slope/rate" << "\n";
+    for (std::size_t k = 0; k < nr; ++k)
+      os << "    " << std::setw(13) << E.regions[k].sites.size() << std::setw(12) << num(at(v.ent_transient_rate, k))
+         << std::setw(8) << iat(v.ent_transient_window, k) << std::setw(12)
+         << num(E.gaussian ? at(v.gauss_slope_over_transient, k) : kNaN, 4) << "\n";
   }
   for (std::size_t j = 0; j < E.stabilizer_dims.size(); ++j) {
     os << "    N = " << std::setw(3) << E.stabilizer_dims[j] << std::setw(7) << "|A|" << std::setw(6) << "cuts"

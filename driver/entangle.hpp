@@ -74,18 +74,22 @@ struct EntanglementValues {
   std::vector<std::int64_t> ent_cuts;            // [region] boundary cuts c of A at this point
   std::vector<double> ent_lyapunov_rate;         // [region] Lambda_|A|: the asymptotic rate of a generic region, not a bound
   std::vector<double> ent_region_rate;           // [region] late rate of ln vol(P_A S^t) (kernels/region_rate.hpp)
+  std::vector<double> ent_transient_rate;        // [region] open clean chains: Lambda_|A| of the ring of the same gates
+  std::vector<std::int64_t> ent_transient_window;  // [region] periods before the backward light cone reaches an end
   std::vector<double> gauss_entropy;             // [region][t] midpoint of S_A(t), nats
   std::vector<double> gauss_radius;              // [region][t] certified radius
   std::vector<std::int64_t> gauss_failures;      // [region] t's whose radius missed the target
   std::vector<double> gauss_slope;               // [region] late-time least-squares slope
   std::vector<double> gauss_slope_over_lyapunov; // [region] rate_ratio(slope, Lambda_|A|)
   std::vector<double> gauss_slope_over_region_rate;  // [region] rate_ratio(slope, region rate)
+  std::vector<double> gauss_slope_over_transient;    // [region] rate_ratio(slope, transient rate)
   std::vector<double> gauss_saturation_value;    // [region] max_t S_A(t)
   std::vector<double> gauss_saturation_time;     // [region] first t with S_A(t) >= 0.99 max
   std::vector<double> gauss_rate;                // [region][t] (S(t+h) - S(t-h)) / (2h), NaN within h of the ends
   std::vector<double> gauss_rate_radius;         // [region][t] (radius(t+h) + radius(t-h)) / (2h)
   std::vector<double> stab_entropy;              // [N][region][t]
   std::vector<double> stab_slope, stab_slope_over_lyapunov, stab_slope_over_lightcone;  // [N][region]
+  std::vector<double> stab_slope_over_transient;                                         // [N][region]
   std::vector<double> stab_saturation_value, stab_saturation_time;                      // [N][region]
   std::vector<double> stab_cap, stab_lightcone_rate;  // [N][region] the two bounds
   std::vector<std::int64_t> stab_violations;     // [N][region] t's above a bound (0 by theorem)

@@ -405,8 +405,8 @@ def test_shards_and_merge_keep_entanglement(runs, run_toral):
     run_toral("merge", merged, *shards, check=True)
     a, b = load(h5), load(merged)
     keys = [k for k in a if k.startswith("entanglement/") and k != "entanglement/wall_time"]
-    # 28 datasets (gaussian/rate and rate_radius included) and the axes region, site_slot and stabilizer/cut
-    assert len(keys) == 31 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
+    # 32 datasets (gaussian/rate, rate_radius and the open-chain transient fields included) and the axes region, site_slot and stabilizer/cut
+    assert len(keys) == 35 and sorted(keys) == sorted(k for k in b if k.startswith("entanglement/") and k != "entanglement/wall_time")
     for k in keys:
         np.testing.assert_array_equal(a[k], b[k], err_msg=k)
 

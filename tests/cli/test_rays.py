@@ -213,7 +213,19 @@ def test_unipotent_open_chain_regions_grow_at_the_ring_rate(tmp_path, run_toral)
         slopes[b] = np.array(rec["/entanglement/gaussian/slope"])
         if b == "open":
             assert rec["/chaos/lambda_max"] == 0 and rec["/chaos/zero_certified"] == 1
+            # the eigenvalue ratio is inf; the transient one is finite (docs/rays.md)
+            assert rec["/entanglement/gaussian/slope_over_lyapunov"] == [None, None]  # +inf: null in JSON
+            transient = np.array(rec["/entanglement/transient_rate"])
+            over_transient = np.array(rec["/entanglement/gaussian/slope_over_transient"])
+            assert rec["/entanglement/transient_window"] == [30, 30]  # min(60, 128 - 1 - 67) // 2
         else:
             assert rec["/chaos/lambda_max"] == pytest.approx(rec["/limit/lambda_max"], abs=1e-9)
+            ring_rate = np.array(rec["/entanglement/lyapunov_rate"])
+            ring_over = np.array(rec["/entanglement/gaussian/slope_over_lyapunov"])
+            assert rec["/entanglement/transient_rate"] == [None, None]  # NaN on rings
     assert (slopes["open"] > 20).all()
     np.testing.assert_allclose(slopes["open"], slopes["periodic"], rtol=0.02)
+    # the transient rate is the ring's Lambda_|A|, so the open chain's ratio is the ring's
+    np.testing.assert_allclose(transient, ring_rate, rtol=1e-12)
+    np.testing.assert_allclose(over_transient, ring_over, rtol=1e-9)
+    assert (over_transient > 0.95).all() and (over_transient <= 1.0).all()
