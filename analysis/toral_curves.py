@@ -8,9 +8,14 @@ not bounds: S_A(0) + Lambda_|A| t, the asymptotic growth rate of a generic
 region (/entanglement/lyapunov_rate), and S_A(0) + r_A t, the rate this
 region reaches (/entanglement/region_rate); and the two bounds (theorems) of
 each N: the light-cone line S_A(0) + 2 c ln N t and the Hilbert-space cap
-min(|A|, L - |A|) ln N. With --table: per point and region the late-time
-slopes and their ratios to Lambda_|A|, to the region rate and to the
-light-cone rate, as stored by toral.
+min(|A|, L - |A|) ln N. On an open chain of clean gates a third rate line,
+S_A(0) + Lambda^tr t (/entanglement/transient_rate: the ring's rate, which a
+bulk region grows at while its backward light cone stays inside the chain),
+with the end of that window (/entanglement/transient_window) marked: the
+curve against both the eigenvalue rate and the transient rate. With --table:
+per point and region the late-time slopes and their ratios to Lambda_|A|,
+to the region rate and to the light-cone rate, as stored by toral, and the
+transient rate and ratio when the file has them.
 
     toral_curves.py run.h5 --point 3 -o curves.png
     toral_curves.py run.h5 --table
@@ -49,6 +54,9 @@ class Curves:
     cuts: np.ndarray            # (P, nR), -1 where the region does not fit
     lyapunov_rate: np.ndarray   # (P, nR): Lambda_|A|, asymptotic rate of a generic region (not a bound)
     region_rate: np.ndarray     # (P, nR): the rate each region reaches (not a bound)
+    transient_rate: np.ndarray | None    # (P, nR): open clean chains, the ring's rate (files without it: None)
+    transient_window: np.ndarray | None  # (P, nR): periods it holds, -1 on rings
+    gauss_ratio_transient: np.ndarray | None
     gauss: np.ndarray | None    # (P, nR, nT)
     gauss_slope: np.ndarray | None
     gauss_ratio: np.ndarray | None
@@ -77,7 +85,9 @@ def load(path: str) -> Curves:
         return Curves(
             path=path, point_count=int(get("cuts").shape[0]), status=status, t=get("t"),
             region_size=get("region_size"), cuts=get("cuts"), lyapunov_rate=get("lyapunov_rate"),
-            region_rate=get("region_rate"),
+            region_rate=get("region_rate"), transient_rate=get("transient_rate"),
+            transient_window=get("transient_window"),
+            gauss_ratio_transient=get("gaussian/slope_over_transient") if g else None,
             gauss=get("gaussian/entropy") if g else None, gauss_slope=get("gaussian/slope") if g else None,
             gauss_ratio=get("gaussian/slope_over_lyapunov") if g else None,
             gauss_ratio_region=get("gaussian/slope_over_region_rate") if g else None,
@@ -97,8 +107,13 @@ def _fmt(x) -> str:
 
 def format_table(c: Curves) -> str:
     head = ["point", "region", "|A|", "Lambda_A", "rate_A"]
+    tr = c.transient_rate is not None and bool(np.isfinite(c.transient_rate).any())
+    if tr:
+        head += ["transient_A", "window"]
     if c.gauss is not None:
         head += ["gauss_slope", "gauss/Lambda", "gauss/rate"]
+        if tr and c.gauss_ratio_transient is not None:
+            head += ["gauss/transient"]
     for N in c.local_dim:
         head += [f"N{N}_slope", f"N{N}/Lambda", f"N{N}/light"]
     rows = ["  ".join(head)]
@@ -108,8 +123,12 @@ def format_table(c: Curves) -> str:
                 continue  # the region does not fit this lattice
             r = [str(p), str(k), str(int(c.region_size[k])), _fmt(c.lyapunov_rate[p, k]),
                  _fmt(c.region_rate[p, k])]
+            if tr:
+                r += [_fmt(c.transient_rate[p, k]), str(int(c.transient_window[p, k]))]
             if c.gauss is not None:
                 r += [_fmt(c.gauss_slope[p, k]), _fmt(c.gauss_ratio[p, k]), _fmt(c.gauss_ratio_region[p, k])]
+                if tr and c.gauss_ratio_transient is not None:
+                    r += [_fmt(c.gauss_ratio_transient[p, k])]
             for j in range(c.local_dim.size):
                 r += [_fmt(c.stab_slope[p, j, k]), _fmt(c.stab_ratio_lyap[p, j, k]),
                       _fmt(c.stab_ratio_light[p, j, k])]
@@ -135,6 +154,8 @@ def plot_point(c: Curves, point: int, out: str) -> None:
     for col, k in enumerate(regions):
         lam = float(c.lyapunov_rate[point, k])
         rate = float(c.region_rate[point, k])
+        trate = float(c.transient_rate[point, k]) if c.transient_rate is not None else math.nan
+        twin = int(c.transient_window[point, k]) if c.transient_window is not None else -1
         for row, kind in enumerate(rows):
             ax = axes[row][col]
             if kind == "gaussian":
@@ -146,6 +167,11 @@ def plot_point(c: Curves, point: int, out: str) -> None:
                 if math.isfinite(rate) and np.isfinite(S[0]):
                     ax.plot(t, S[0] + rate * t, color="tab:red", ls=(0, (1, 2, 4, 2)), lw=1,
                             label=r"$S(0)+r_A t$ (this region)")
+                if math.isfinite(trate) and np.isfinite(S[0]):
+                    ax.plot(t, S[0] + trate * t, color="tab:blue", ls="--", lw=1,
+                            label=r"$S(0)+\Lambda^{tr}_{|A|}t$ (transient: ring of the same gates)")
+                    if 0 <= twin <= t[-1]:
+                        ax.axvline(twin, color="tab:blue", ls=":", lw=0.8, label="light cone reaches an end")
             else:
                 for j, N in enumerate(c.local_dim):
                     S = c.stab[point, j, k]
@@ -160,9 +186,12 @@ def plot_point(c: Curves, point: int, out: str) -> None:
             ax.set_ylabel(r"$S_A(t)$ (nats)")
             ax.set_title(f"point {point}, region {k} (|A| = {int(c.region_size[k])}, c = {int(c.cuts[point, k])})",
                          fontsize=9)
-            ax.legend(fontsize=7, loc="upper left")
-    fig.suptitle("bounds (theorems): dashed Hilbert-space cap, dash-dot light cone (capped); rates, not bounds: "
-                 "dotted asymptotic rate of a generic region, red that region's rate", fontsize=8)
+            ax.legend(fontsize=7, loc="upper left", framealpha=0.6)
+    title = ("bounds (theorems): dashed Hilbert-space cap, dash-dot light cone (capped);\nrates, not bounds: "
+             "dotted asymptotic rate of a generic region (eigenvalues), red that region's rate")
+    if c.transient_rate is not None and np.isfinite(c.transient_rate[point]).any():
+        title += ",\nblue dashed the open chain's transient rate (held until the dotted blue line)"
+    fig.suptitle(title, fontsize=8)
     fig.tight_layout()
     fig.savefig(out, dpi=120)
     plt.close(fig)

@@ -12,6 +12,7 @@ const Diagnostic& bands_diagnostic();      // driver/bands.cpp
 const Diagnostic& spreading_diagnostic();  // driver/spreading.cpp
 const Diagnostic& vectors_diagnostic();    // driver/vectors.cpp
 const Diagnostic& rays_diagnostic();       // driver/rays.cpp
+const Diagnostic& transient_diagnostic();  // driver/transient.cpp
 
 const std::vector<const Diagnostic*>& diagnostics() {
   static const std::vector<const Diagnostic*> registry = {
@@ -20,6 +21,7 @@ const std::vector<const Diagnostic*>& diagnostics() {
       &spreading_diagnostic(),     // [spreading] -> /spreading (driver/spreading.cpp)
       &vectors_diagnostic(),       // [vectors] -> /vectors (driver/vectors.cpp)
       &rays_diagnostic(),          // [rays] -> /rays (driver/rays.cpp)
+      &transient_diagnostic(),     // open chains, [transient] -> /transient, /points/convective (driver/transient.cpp)
   };
   return registry;
 }

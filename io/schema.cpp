@@ -201,7 +201,7 @@ std::vector<std::int64_t> Schema::inner_shape(std::size_t k) const {
 }
 
 std::string Schema::validate() const {
-  std::set<std::string> paths, group_paths{"/"};
+  std::set<std::string> paths, group_paths{"/", "/points"};  // /points: a diagnostic may add a per-point flag there
   auto add = [&](const std::string& p, const char* what) -> std::string {
     if (!good_path(p)) return std::string(what) + " path '" + p + "' is not an absolute path of [A-Za-z0-9_] names";
     if (!paths.insert(p).second) return "path '" + p + "' is declared twice";

@@ -97,3 +97,33 @@ def test_gaussian_only_and_stabilizer_only_files(tmp_path):
         c = tc.load(str(p))
         assert len(tc.format_table(c).splitlines()[0].split()) == cols
         tc.plot_point(c, 2, str(tmp_path / "x.png"))
+
+
+def test_open_chain_transient_rate_column_and_line(tmp_path):
+    # An open chain whose eigenvalue rates vanish (Lambda = 0, slope/Lambda = inf)
+    # while its regions grow at the transient rate (docs/rays.md): the table gets
+    # the transient rate, its window and the stored ratio; the plot draws it.
+    p = tmp_path / "open.h5"
+    write(p, stabilizer=False)
+    with h5py.File(p, "a") as f:
+        e = f["entanglement"]
+        tr = np.array([[2.0, 4.0], [np.nan, np.nan], [0.5, 1.0]])  # point 1: a ring (NaN)
+        e["transient_rate"] = tr
+        e["transient_window"] = np.array([[4, 4], [-1, -1], [30, 30]])
+        slope = e["gaussian/slope"][()]
+        e["gaussian/slope_over_transient"] = slope / tr
+    c = tc.load(str(p))
+    lines = tc.format_table(c).splitlines()
+    head = lines[0].split()
+    assert head[5:7] == ["transient_A", "window"] and head[-1] == "gauss/transient"
+    rows = [l.split() for l in lines[1:]]
+    r = rows[1]  # point 0, region 1: transient 4, window 4, slope 2 -> 0.5
+    assert float(r[5]) == 4.0 and r[6] == "4" and float(r[-1]) == 0.5
+    assert rows[2][5] == "nan" and rows[2][6] == "-1"  # the ring
+    png = tmp_path / "open.png"
+    tc.plot_point(c, 0, str(png))
+    assert png.stat().st_size > 1000
+    # a file without the transient datasets (older runs) keeps the old columns
+    q = tmp_path / "old.h5"
+    write(q, stabilizer=False)
+    assert "transient_A" not in tc.format_table(tc.load(str(q))).splitlines()[0]

@@ -75,7 +75,8 @@ EXPECTED_GROUPS = {
     "/limit", "/limit/histogram", "/bounds", "/entanglement", "/entanglement/gaussian",
     "/entanglement/stabilizer", "/stats", "/stats/lambda_max", "/stats/hilbert_cap",
     "/stats/stabilizer_slope", "/bands", "/stats/bands_elliptic_fraction", "/spreading",
-    "/vectors", "/stats/vectors_exponent", "/rays", "/stats/rays_peak",
+    "/vectors", "/stats/vectors_exponent", "/rays", "/stats/rays_peak", "/transient",
+    "/stats/transient_lambda_max",
 }
 TIMING = {"/points/wall_time", "/chaos/solver/wall_time", "/entanglement/wall_time"}
 
