@@ -22,6 +22,7 @@
 #include "diagnostic.hpp"
 #include "diagnostic_kit.hpp"
 #include "rays.hpp"
+#include "spreading.hpp"
 #include "sweep.hpp"
 #include "text_format.hpp"
 
@@ -34,7 +35,13 @@ namespace {
 // up to the rounding of the minimiser).
 constexpr double kStillVelocity = 1e-6;
 
-struct TransientSpec : DiagnosticSpec {};
+struct TransientSpec : DiagnosticSpec {
+  bool measured = false;     // measure also clean chains (a check of the measurement against the exact rate)
+  std::int64_t periods = 256;  // the longest measurement window T (chains that are not clean)
+  std::int64_t starts = 8;     // perturbed sites k
+};
+
+const TransientSpec& spec_of(const Config& c);
 
 const std::string kG = "/transient", kEll = "/transient/region_size", kFlag = "/points/transient_differs";
 
@@ -45,7 +52,53 @@ FieldDecl field(const std::string& name, std::vector<std::string> dims, std::str
 }
 
 // Field order of declare() and compute().
-enum Slot : std::size_t { kRate, kRateErr, kPeakV, kWindow, kAbs, kAbsErr, kGap, kGapErr, kRegion, kConv, kCount };
+enum Slot : std::size_t {
+  kRate, kRateErr, kPeakV, kWindow, kAbs, kAbsErr, kGap, kGapErr, kMethod, kPeriods, kStarts, kRegion, kConv, kCount
+};
+
+// The open chain's gates on sites [off, off + W) as an open chain of W sites
+// (off even, so the brick-wall layers keep their parity): exactly the
+// chain's dynamics for a perturbation whose light cone stays inside.
+GateSource window_chain(const GateSource& g, std::int64_t off, std::int64_t W) {
+  GateSource w = g;
+  w.L = W;
+  w.boundary = Boundary::Open;
+  w.translation_invariant = false;
+  const auto bond = g.bond;
+  w.bond = [bond, off](std::int64_t b, std::int64_t t) { return bond(b + off, t); };
+  if (g.has_site_layer) {
+    const auto site = g.site;
+    w.site = [site, off](std::int64_t i, std::int64_t t) { return site(i + off, t); };
+  }
+  return w;
+}
+
+// The transient rate of any open chain, measured (kernels/spreading.hpp,
+// peak_rate): the exact integer responses to q perturbations of k sites,
+// evenly spread over [2T + 1, L - 2 - 2T], over T = min(periods, (L - 3) / 6)
+// periods, so that every light cone (2 sites per period each way) stays
+// inside the chain. Each start runs on the window of the chain its light
+// cone can reach (exact: the rest of the chain never sees it).
+PeakRate measured_rate(const GateSource& g, std::int64_t periods, std::int64_t starts) {
+  const std::int64_t T = std::min(periods, (g.L - 3) / 6);
+  if (T < 16) {
+    PeakRate r;
+    r.rate = r.error = r.spread = kNaN;
+    r.periods = std::max<std::int64_t>(T, 0);
+    return r;
+  }
+  const std::int64_t lo = 2 * T + 1, hi = g.L - 2 - 2 * T;
+  const std::int64_t k = std::min(starts, hi - lo + 1);
+  std::vector<std::vector<double>> m;
+  for (std::int64_t j = 0; j < k; ++j) {
+    const std::int64_t c = k == 1 ? g.L / 2 : lo + (hi - lo) * j / (k - 1);
+    std::int64_t off = std::max<std::int64_t>(0, c - 2 * T - 2);
+    off -= off % 2;
+    const std::int64_t end = std::min(g.L - 1, c + 2 * T + 2);
+    m.push_back(profile_peak(spread_profile(window_chain(g, off, end - off + 1), c - off, false, T, 1)));
+  }
+  return peak_rate(m);
+}
 
 bool has_open_chain(const Config& c) {
   for (const auto& s : c.sweeps)
@@ -74,9 +127,19 @@ class TransientDiagnostic final : public Diagnostic {
     if (!d.table) return e;
     const std::string P = "transient";
     const toml::table& t = *d.table;
-    cx.only_keys(t, P, {"enabled"});
+    cx.only_keys(t, P, {"enabled", "method", "periods", "starts"});
     e->enabled = true;  // the table asks for it, also on a config without open chains (all padding then)
     if (const toml::node* n = t.get("enabled")) e->enabled = cx.boolean(*n, P + ".enabled");
+    if (const toml::node* n = t.get("method")) e->measured = cx.choice(*n, P + ".method", {"auto", "measured"}) == "measured";
+    if (const toml::node* n = t.get("periods")) {
+      e->periods = cx.integer(*n, P + ".periods");
+      if (e->periods < 16 || e->periods > 100'000)
+        cx.fail(*n, P + ".periods", std::to_string(e->periods) + " is outside 16..100000");
+    }
+    if (const toml::node* n = t.get("starts")) {
+      e->starts = cx.integer(*n, P + ".starts");
+      if (e->starts < 1 || e->starts > 1000) cx.fail(*n, P + ".starts", std::to_string(e->starts) + " is outside 1..1000");
+    }
     return e;
   }
 
@@ -120,6 +183,18 @@ class TransientDiagnostic final : public Diagnostic {
     s.fields.push_back(field("gap_error", {}, "1/period",
                              "lambda_max_error + the eigenvalue lambda_max's error (its exponent_error, else "
                              "/chaos/accuracy/error_bound; 0 for a certified zero)"));
+    s.fields.push_back(field_decl(kG + "/method", Elem::I64, {}, {}, "1",
+                                  "how lambda_max was found: 1 exactly from the Bloch symbol (translation-invariant "
+                                  "gates, the same every period), 2 measured (the growth of the largest exact "
+                                  "integer response over the second half of a window of measured_periods, averaged "
+                                  "over measured_starts sites; disordered or redrawn chains, or method = "
+                                  "\"measured\"), -1 none"));
+    s.fields.push_back(field_decl(kG + "/measured_periods", Elem::I64, {}, {}, "periods",
+                                  "method 2: the window T = min(transient.periods, (L - 3) / 6), so that every "
+                                  "start's light cone stays inside the chain; -1 otherwise"));
+    s.fields.push_back(field_decl(kG + "/measured_starts", Elem::I64, {}, {}, "1",
+                                  "method 2: the perturbed sites, evenly spread over [2T + 1, L - 2 - 2T]; -1 "
+                                  "otherwise"));
     s.fields.push_back(field("lyapunov_rate", {kEll}, "nats/period",
                              "transient Lambda_ell: Lambda_ell of the periodic ring of the same gates (L rounded up "
                              "to even; Bloch spectrum), the rate a bulk region of ell sites grows at while its "
@@ -144,30 +219,47 @@ class TransientDiagnostic final : public Diagnostic {
     out.fields[kConv] = scalar_value(std::int64_t{-1});
     try {
       GateSource gs = gate_source(c, p);
-      if (p.boundary != Boundary::Open || !gs.translation_invariant || !gs.time_periodic) return out;
-      GateSource cell = gs;  // the symbol depends on the gates only: a two-site ring carries them
-      cell.L = 2;
-      cell.boundary = Boundary::Periodic;
-      const VelocityExponents v = velocity_exponents(materialize(cell), false, {0.0});
+      if (p.boundary != Boundary::Open) return out;
       const double L = static_cast<double>(p.L);
-      const double vstar = std::abs(v.peak_velocity) < kStillVelocity ? 0.0 : v.peak_velocity;
-      out.fields[kRate] = scalar_value(v.peak);
-      out.fields[kRateErr] = scalar_value(v.peak_error);
-      out.fields[kPeakV] = scalar_value(vstar);
-      out.fields[kWindow] = scalar_value(vstar == 0.0 ? std::numeric_limits<double>::infinity() : L / std::abs(vstar));
-      out.fields[kAbs] = scalar_value(v.absolute);
-      out.fields[kAbsErr] = scalar_value(v.absolute_error);
-      // Lambda_ell of the ring of the same gates (an even number of sites for the brick-wall).
-      GateSource ring = gs;
-      ring.boundary = Boundary::Periodic;
-      ring.L = p.L + (p.L % 2);
-      const Spectrum sp = bloch_spectrum(materialize(ring));
-      FieldValue& reg = out.fields[kRegion];
-      reg.shape = {static_cast<std::int64_t>(c.bounds.regions.size())};
-      for (std::int64_t ell : c.bounds.regions)
-        reg.f.push_back(ell >= 1 && ell <= p.L - 1 ? lyapunov_rate(sp.exponents, ring.L, ell) : kNaN);
+      double rate = kNaN, rate_err = kNaN;
+      if (gs.translation_invariant && gs.time_periodic && !spec_of(c).measured) {
+        GateSource cell = gs;  // the symbol depends on the gates only: a two-site ring carries them
+        cell.L = 2;
+        cell.boundary = Boundary::Periodic;
+        const VelocityExponents v = velocity_exponents(materialize(cell), false, {0.0});
+        const double vstar = std::abs(v.peak_velocity) < kStillVelocity ? 0.0 : v.peak_velocity;
+        rate = v.peak;
+        rate_err = v.peak_error;
+        out.fields[kPeakV] = scalar_value(vstar);
+        out.fields[kWindow] =
+            scalar_value(vstar == 0.0 ? std::numeric_limits<double>::infinity() : L / std::abs(vstar));
+        out.fields[kAbs] = scalar_value(v.absolute);
+        out.fields[kAbsErr] = scalar_value(v.absolute_error);
+        out.fields[kMethod] = scalar_value(std::int64_t{1});
+        out.fields[kPeriods] = scalar_value(std::int64_t{-1});
+        out.fields[kStarts] = scalar_value(std::int64_t{-1});
+        // Lambda_ell of the ring of the same gates (an even number of sites for the brick-wall).
+        GateSource ring = gs;
+        ring.boundary = Boundary::Periodic;
+        ring.L = p.L + (p.L % 2);
+        const Spectrum sp = bloch_spectrum(materialize(ring));
+        FieldValue& reg = out.fields[kRegion];
+        reg.shape = {static_cast<std::int64_t>(c.bounds.regions.size())};
+        for (std::int64_t ell : c.bounds.regions)
+          reg.f.push_back(ell >= 1 && ell <= p.L - 1 ? lyapunov_rate(sp.exponents, ring.L, ell) : kNaN);
+      } else {
+        const PeakRate m = measured_rate(gs, spec_of(c).periods, spec_of(c).starts);
+        out.fields[kMethod] = scalar_value(std::int64_t{2});
+        out.fields[kPeriods] = scalar_value(m.periods);
+        out.fields[kStarts] = scalar_value(m.starts);
+        if (!std::isfinite(m.rate)) return out;  // too short to measure: the rest is padding
+        rate = m.rate;
+        rate_err = m.error;
+      }
+      out.fields[kRate] = scalar_value(rate);
+      out.fields[kRateErr] = scalar_value(rate_err);
       if (r.method != 0 && std::isfinite(r.lambda_max)) {
-        const double gap = v.peak - r.lambda_max, err = v.peak_error + eigen_error(r);
+        const double gap = rate - r.lambda_max, err = rate_err + eigen_error(r);
         out.fields[kGap] = scalar_value(gap);
         out.fields[kGapErr] = scalar_value(err);
         if (std::isfinite(err)) out.fields[kConv] = scalar_value(std::int64_t{gap > err ? 1 : 0});
@@ -189,38 +281,59 @@ class TransientDiagnostic final : public Diagnostic {
   }
 
   void print_text(std::ostream& os, const Config& c, const std::vector<FieldValue>& v) const override {
+    auto f = [&](Slot s) { return v.size() > s && !v[s].f.empty() ? v[s].f[0] : kNaN; };
+    auto n = [&](Slot s) { return v.size() > s && !v[s].i.empty() ? v[s].i[0] : std::int64_t{-1}; };
     if (v.size() < kCount || v[kRate].empty()) {
-      os << "  transient: none (an open chain of translation-invariant gates, the same every period, is needed)\n";
+      if (n(kMethod) == 2)
+        os << "  transient: not measured (a window of 16 periods needs L >= 99, so that the light cones stay "
+              "inside)\n";
+      else
+        os << "  transient: none (open chains only)\n";
       return;
     }
-    auto f = [&](Slot s) { return v[s].f.empty() ? kNaN : v[s].f[0]; };
-    const std::int64_t flag = v[kConv].i.empty() ? -1 : v[kConv].i[0];
-    os << "  transient (open chain; rates, not bounds): while perturbations travel, max_v lambda(v) = "
-       << num(f(kRate)) << " +- " << num(f(kRateErr), 2) << " at v = " << num(f(kPeakV), 4) << " for t < "
-       << num(f(kWindow), 6) << " periods;\n"
-       << "    as t -> infinity the eigenvalues: lambda_max = " << num(f(kRate) - f(kGap)) << " (tends to lambda(0) = "
-       << num(f(kAbs)) << " as L grows)\n";
-    if (flag == 1) {
-      const bool moves = f(kRate) - f(kAbs) > f(kRateErr) + f(kAbsErr);
-      os << "    they differ: the eigenvalue lambda_max is below the transient rate by " << num(f(kGap)) << " +- "
-         << num(f(kGapErr), 2) << "\n    " << (moves ? "(convective: the fastest growth travels and leaves through the ends, "
-                                           "so longer chains stay below too)"
-                                         : "(finite size: the fastest growth stays in place, and the eigenvalue "
-                                           "lambda_max tends to it as L grows)")
-         << ";\n    for anything seen before t ~ window use the transient rate (docs/rays.md)\n";
-    }
-    else if (flag == 0)
-      os << "    the eigenvalue lambda_max and the transient rate agree within " << num(f(kGapErr), 2) << "\n";
-    os << "    transient Lambda_ell (ring of the same gates):";
-    for (std::size_t k = 0; k < c.bounds.regions.size() && k < v[kRegion].f.size(); ++k)
-      os << "  ell = " << c.bounds.regions[k] << ": " << num(v[kRegion].f[k], 6);
+    const std::int64_t flag = n(kConv);
+    const bool exact = n(kMethod) == 1;
+    os << "  transient (open chain; rates, not bounds): while perturbations travel, max_v lambda(v) = " << num(f(kRate))
+       << " +- " << num(f(kRateErr), 2);
+    if (exact)
+      os << " at v = " << num(f(kPeakV), 4) << " for t < " << num(f(kWindow), 6) << " periods;\n";
+    else
+      os << "\n    (measured: exact responses of " << n(kStarts) << " sites, growth over periods " << n(kPeriods) / 2
+         << ".." << n(kPeriods) << ");\n";
+    os << "    as t -> infinity the eigenvalues: lambda_max = " << num(f(kRate) - f(kGap));
+    if (exact) os << " (tends to lambda(0) = " << num(f(kAbs)) << " as L grows)";
     os << "\n";
+    if (flag == 1) {
+      os << "    they differ: the eigenvalue lambda_max is below the transient rate by " << num(f(kGap)) << " +- "
+         << num(f(kGapErr), 2) << "\n";
+      if (exact) {
+        const bool moves = f(kRate) - f(kAbs) > f(kRateErr) + f(kAbsErr);
+        os << "    " << (moves ? "(convective: the fastest growth travels and leaves through the ends, so longer "
+                                 "chains stay below too);"
+                               : "(finite size: the fastest growth stays in place, and the eigenvalue lambda_max "
+                                 "tends to it as L grows);")
+           << "\n";
+      }
+      os << "    for anything seen before perturbations reach an end use the transient rate (docs/rays.md)\n";
+    } else if (flag == 0) {
+      os << "    the eigenvalue lambda_max and the transient rate agree within " << num(f(kGapErr), 2) << "\n";
+    }
+    if (exact) {
+      os << "    transient Lambda_ell (ring of the same gates):";
+      for (std::size_t k = 0; k < c.bounds.regions.size() && k < v[kRegion].f.size(); ++k)
+        os << "  ell = " << c.bounds.regions[k] << ": " << num(v[kRegion].f[k], 6);
+      os << "\n";
+    }
   }
 };
 
 const TransientDiagnostic& instance() {
   static const TransientDiagnostic d;
   return d;
+}
+
+const TransientSpec& spec_of(const Config& c) {
+  return static_cast<const TransientSpec&>(diagnostic_spec(c, instance()));
 }
 
 }  // namespace

@@ -1,5 +1,6 @@
 #include "spreading.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <string>
@@ -125,6 +126,47 @@ std::vector<double> ray_rates(const SpreadProfile& p, std::int64_t site, const s
     r[k] = last[static_cast<std::size_t>(x)] / static_cast<double>(T);
   }
   return r;
+}
+
+PeakRate peak_rate(const std::vector<std::vector<double>>& m) {
+  PeakRate r;
+  if (m.empty() || m[0].empty()) throw InvalidInput("peak_rate: no profile");
+  const std::size_t n = m[0].size();
+  for (const auto& mj : m)
+    if (mj.size() != n) throw InvalidInput("peak_rate: the starts' profiles differ in length");
+  const std::int64_t T = static_cast<std::int64_t>(n) - 1;
+  const std::size_t k = m.size();
+  r.periods = T;
+  r.starts = static_cast<std::int64_t>(k);
+  if (T < 16) {
+    r.rate = r.error = r.spread = std::numeric_limits<double>::quiet_NaN();
+    return r;
+  }
+  const auto h = static_cast<std::size_t>(T / 2), q = static_cast<std::size_t>(T / 4);
+  std::vector<double> late(k), early(k);
+  double mean = 0, mean_early = 0;
+  for (std::size_t j = 0; j < k; ++j) {
+    late[j] = (m[j][static_cast<std::size_t>(T)] - m[j][h]) / static_cast<double>(static_cast<std::size_t>(T) - h);
+    early[j] = (m[j][h] - m[j][q]) / static_cast<double>(h - q);
+    mean += late[j];
+    mean_early += early[j];
+  }
+  mean /= static_cast<double>(k);
+  mean_early /= static_cast<double>(k);
+  double var = 0;
+  for (double x : late) var += (x - mean) * (x - mean);
+  r.spread = k > 1 ? std::sqrt(var / static_cast<double>(k - 1) / static_cast<double>(k)) : 0.0;
+  r.rate = mean;
+  r.error = r.spread + 2.0 * std::abs(mean - mean_early);
+  return r;
+}
+
+std::vector<double> profile_peak(const SpreadProfile& p) {
+  std::vector<double> m(p.t.size(), -std::numeric_limits<double>::infinity());
+  for (std::size_t k = 0; k < p.t.size(); ++k)
+    for (std::int64_t i = 0; i < p.L; ++i)
+      m[k] = std::max(m[k], p.log_amp[k * static_cast<std::size_t>(p.L) + static_cast<std::size_t>(i)]);
+  return m;
 }
 
 }  // namespace toral

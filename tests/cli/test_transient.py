@@ -160,9 +160,91 @@ def test_enabled_key(tmp_path, run_toral):
 @pytest.mark.parametrize("body,where", [
     ("[transient]\nenabled = 1\n", "c.toml:11: transient.enabled"),
     ("[transient]\nenable = true\n", "c.toml:11: transient.enable: unknown key"),
+    ("[transient]\nperiods = 8\n", "c.toml:11: transient.periods: 8 is outside 16..100000"),
+    ("[transient]\nstarts = 0\n", "c.toml:11: transient.starts"),
+    ("[transient]\nmethod = \"fast\"\n", "c.toml:11: transient.method"),
 ])
 def test_bad_values(tmp_path, run_toral, body, where):
     cfg = tmp_path / "c.toml"
     cfg.write_text(sweep("shear", 16, '"open"', SHEAR) + body)
     r = run_toral("check", cfg)
     assert r.returncode == 2 and where in r.stderr and len(r.stderr.strip().splitlines()) == 1, r.stderr
+
+
+DISORDERED = 'kind = "position"\nfamily = "shear2"\na = 0\nb = { draw = [1, 3] }'
+
+
+def python_peaks(mtx, L, starts, T):
+    """m_j(t) = ln max_i max(|q_i|, |p_i|) of S^t e_q(start_j), t = 0..T, Python integers on the whole chain."""
+    import scipy.io
+    S = scipy.io.mmread(str(mtx)).tocsr()
+    rows = [[(int(S.indices[k]), int(round(S.data[k]))) for k in range(S.indptr[i], S.indptr[i + 1])]
+            for i in range(S.shape[0])]
+    out = []
+    for c in starts:
+        x = [0] * (2 * L)
+        x[c] = 1
+        m = [0.0]
+        for _ in range(T):
+            x = [sum(v * x[j] for j, v in row) for row in rows]
+            m.append(math.log(max(max(abs(x[i]), abs(x[L + i])) for i in range(L))))
+        out.append(m)
+    return out
+
+
+def test_disordered_unipotent_chain_is_measured(tmp_path, run_toral):
+    # Every eigenvalue exponent of this open chain is exactly 0, yet its
+    # perturbations grow while they travel: the measured transient rate is
+    # the growth of the largest response over periods T/2..T, averaged over 8
+    # starts (kernels/spreading.hpp, peak_rate), recomputed here from Python
+    # integers on the whole chain (toral propagates each start on the part of
+    # the chain its light cone reaches).
+    L = 256
+    cfg = tmp_path / "c.toml"
+    cfg.write_text(sweep("dis", L, '"open"', DISORDERED, "seeds = [3]\n") + '[spectrum]\nmethod = "dense"\n')
+    rec = point(run_toral, cfg)
+    assert rec["/chaos/lambda_max"] == pytest.approx(0, abs=1e-6)  # L = 256 is past certify_max: numerically 0
+    assert rec["/transient/method"] == 2
+    T = rec["/transient/measured_periods"]
+    assert T == min(256, (L - 3) // 6) == 42 and rec["/transient/measured_starts"] == 8
+    lo, hi = 2 * T + 1, L - 2 - 2 * T
+    starts = [lo + (hi - lo) * j // 7 for j in range(8)]
+    mtx = tmp_path / "s.mtx"
+    run_toral("point", cfg, "--index", 0, "--matrix", mtx, check=True)
+    m = python_peaks(mtx, L, starts, T)
+    late = [(mj[T] - mj[T // 2]) / (T - T // 2) for mj in m]
+    early = [(mj[T // 2] - mj[T // 4]) / (T // 2 - T // 4) for mj in m]
+    rate = float(np.mean(late))
+    err = float(np.std(late, ddof=1) / math.sqrt(8)) + 2 * abs(rate - float(np.mean(early)))
+    assert rec["/transient/lambda_max"] == pytest.approx(rate, abs=1e-9)
+    assert rec["/transient/lambda_max_error"] == pytest.approx(err, abs=1e-9)
+    assert rate > 1.0 and rec["/points/transient_differs"] == 1
+    assert rec["/transient/window"] is None and rec["/transient/lyapunov_rate"] == []  # padding: not measured
+    text = run_toral("point", cfg, "--index", 0, check=True).stdout
+    assert "measured: exact responses of 8 sites" in text and "they differ" in text
+
+
+def test_measurement_covers_the_exact_rate_of_clean_chains(tmp_path, run_toral):
+    # method = "measured" on clean chains: the measured rate with its error
+    # must cover the exact max_v lambda(v) (= /limit/lambda_max, an
+    # independent quadrature of the Bloch bands).
+    for bond, L in ((ASYM, 512), (SHEAR, 1024), (CAT, 256)):
+        cfg = tmp_path / "c.toml"
+        cfg.write_text(sweep("x", L, '"open"', bond) + '[spectrum]\nmethod = "tangent"\n[spectrum.tangent]\n'
+                       "count = 1\nperiods = 4\nwindows = 2\ntransient = 0\n"
+                       '[transient]\nmethod = "measured"\n')
+        rec = point(run_toral, cfg)
+        assert rec["/transient/method"] == 2
+        exact = rec["/limit/lambda_max"]
+        got, err = rec["/transient/lambda_max"], rec["/transient/lambda_max_error"]
+        assert abs(got - exact) <= err and err < 0.1, (bond, L, got, err, exact)
+
+
+def test_redrawn_open_chain_is_measured(tmp_path, run_toral):
+    cfg = tmp_path / "c.toml"
+    cfg.write_text(sweep("r", 200, '"open"', DISORDERED, 'seeds = [1]\ndisorder = "redrawn"\n') +
+                   '[spectrum.tangent]\ncount = 1\nperiods = 200\nwindows = 4\ntransient = 20\n')
+    rec = point(run_toral, cfg)
+    assert rec["/transient/method"] == 2 and rec["/transient/measured_periods"] == 32
+    assert 0.5 < rec["/transient/lambda_max"] and math.isfinite(rec["/transient/lambda_max_error"])
+    assert rec["/points/transient_differs"] in (0, 1)
