@@ -7,7 +7,6 @@
 #include <toml++/toml.h>
 
 #include <algorithm>
-#include <chrono>
 #include <cmath>
 #include <numbers>
 #include <ostream>
@@ -225,13 +224,10 @@ class BandsDiagnostic final : public Diagnostic {
   DiagnosticEstimate estimate(const Config& c, const Point& p) const override {
     // The computation is cheap (a few 4x4 eigenproblems per momentum and one
     // exact analysis of the gates): time it on the point itself.
-    const auto t0 = std::chrono::steady_clock::now();
-    (void)compute(c, p, PointRecord{}, MPI_COMM_SELF);
-    DiagnosticEstimate d;
-    d.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
     const BandsSpec& e = spec_of(c);
-    d.bytes = 8.0 * (10.0 * static_cast<double>(p.L) + 9.0 * static_cast<double>(e.grid) + 5.0 * static_cast<double>(e.max_arcs));
-    return d;
+    return timed_estimate(*this, c, p,
+                          8.0 * (10.0 * static_cast<double>(p.L) + 9.0 * static_cast<double>(e.grid) +
+                                 5.0 * static_cast<double>(e.max_arcs)));
   }
 
   void print_text(std::ostream& os, const Config& c, const std::vector<FieldValue>& v) const override {

@@ -7,11 +7,13 @@
 #include <toml++/toml.h>
 
 #include <algorithm>
+#include <chrono>
 #include <cstdint>
 #include <string>
 #include <vector>
 
 #include "config_ctx.hpp"
+#include "diagnostic.hpp"
 #include "schema.hpp"
 
 namespace toral {
@@ -95,6 +97,17 @@ inline FieldValue scalar_value(std::int64_t x) {
   FieldValue f;
   f.i = {x};
   return f;
+}
+
+// `toral check` for a cheap diagnostic: time its compute on the point itself
+// (one rank), with the given working memory.
+inline DiagnosticEstimate timed_estimate(const Diagnostic& d, const Config& c, const Point& p, double bytes) {
+  const auto t0 = std::chrono::steady_clock::now();
+  (void)d.compute(c, p, PointRecord{}, MPI_COMM_SELF);
+  DiagnosticEstimate e;
+  e.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  e.bytes = bytes;
+  return e;
 }
 
 }  // namespace toral

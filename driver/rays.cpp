@@ -5,7 +5,6 @@
 // (docs/config.md), group /rays (docs/layout.md); padding for circuits that
 // are not translation invariant or are redrawn in time (their measured
 // lambda(v) is in /spreading).
-#include <chrono>
 #include <cmath>
 #include <limits>
 #include <ostream>
@@ -144,12 +143,7 @@ class RaysDiagnostic final : public Diagnostic {
   }
 
   DiagnosticEstimate estimate(const Config& c, const Point& p) const override {
-    const auto t0 = std::chrono::steady_clock::now();
-    (void)compute(c, p, PointRecord{}, MPI_COMM_SELF);
-    DiagnosticEstimate d;
-    d.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-    d.bytes = 16.0 * static_cast<double>(spec_of(c).velocities) + 4096.0;
-    return d;
+    return timed_estimate(*this, c, p, 16.0 * static_cast<double>(spec_of(c).velocities) + 4096.0);
   }
 
   void print_text(std::ostream& os, const Config& c, const std::vector<FieldValue>& v) const override {

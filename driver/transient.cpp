@@ -11,7 +11,6 @@
 // (kernels/rays.hpp, kernels/bloch.hpp); disordered or redrawn chains are
 // padding and flag -1 (their measured lambda(v) is in /spreading).
 #include <algorithm>
-#include <chrono>
 #include <cmath>
 #include <limits>
 #include <ostream>
@@ -272,12 +271,11 @@ class TransientDiagnostic final : public Diagnostic {
   }
 
   DiagnosticEstimate estimate(const Config& c, const Point& p) const override {
-    const auto t0 = std::chrono::steady_clock::now();
-    (void)compute(c, p, PointRecord{}, MPI_COMM_SELF);
-    DiagnosticEstimate d;
-    d.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-    d.bytes = 48.0 * static_cast<double>(p.L) + 4096.0;  // the ring's exponents and Bloch blocks
-    return d;
+    // the ring's exponents and Bloch blocks, or the measured windows' profiles
+    const TransientSpec& e = spec_of(c);
+    const double window = static_cast<double>(std::min(e.periods, p.L / 6));
+    return timed_estimate(*this, c, p,
+                          48.0 * static_cast<double>(p.L) + 8.0 * (window + 1) * (4 * window + 5) + 4096.0);
   }
 
   void print_text(std::ostream& os, const Config& c, const std::vector<FieldValue>& v) const override {
