@@ -37,3 +37,15 @@ def run_toral(toral):
         return p
 
     return run
+
+
+def shard_and_merge(run_toral, cfg, folder, n=2):
+    """Runs `cfg` as n shards in `folder` and merges them: the merged file's path."""
+    shards = []
+    for i in range(n):
+        s = folder / f"shard{i}.h5"
+        run_toral("run", cfg, "-o", s, "-q", "--shard", f"{i}/{n}", check=True)
+        shards.append(s)
+    merged = folder / "merged.h5"
+    run_toral("merge", merged, *shards, check=True)
+    return merged

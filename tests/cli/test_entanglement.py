@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 import scipy.io
 
-from conftest import mpi_env
+from conftest import mpi_env, shard_and_merge
 from test_cli import one_line_error, write
 
 T = 24
@@ -396,13 +396,7 @@ def test_shards_and_merge_keep_entanglement(runs, run_toral):
     # /entanglement datasets, the NaN padding of the profile included, survive.
     d_, out = runs
     cfg, h5 = out["mixed"]
-    shards = []
-    for i in range(2):
-        s = d_ / f"shard{i}.h5"
-        run_toral("run", cfg, "-o", s, "-q", "--shard", f"{i}/2", check=True)
-        shards.append(s)
-    merged = d_ / "merged.h5"
-    run_toral("merge", merged, *shards, check=True)
+    merged = shard_and_merge(run_toral, cfg, d_)
     a, b = load(h5), load(merged)
     keys = [k for k in a if k.startswith("entanglement/") and k != "entanglement/wall_time"]
     # 32 datasets (gaussian/rate, rate_radius and the open-chain transient fields included) and the axes region, site_slot and stabilizer/cut

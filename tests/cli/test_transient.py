@@ -24,6 +24,8 @@ import h5py
 import numpy as np
 import pytest
 
+from conftest import shard_and_merge
+
 SHEAR = 'kind = "position"\nfamily = "shear2"\na = 0\nb = 4'
 CAT = "matrix = [[2, 1], [1, 1]]"
 ASYM = 'kind = "symplectic"\nmatrix = [[0, 3, 2, 0], [-1, 3, 2, -1], [0, 1, 1, 0], [2, 0, 0, 3]]'
@@ -124,13 +126,7 @@ def test_disordered_chain_is_not_determined_and_file_layout(tmp_path, run_toral)
         assert np.isnan(f["/transient/lyapunov_rate"][1:]).all()
         assert "transient_lambda_max" in f["/stats"]
     # the file reads back and merges: shards keep the flag
-    shards = []
-    for i in range(2):
-        s = tmp_path / f"s{i}.h5"
-        run_toral("run", cfg, "-o", s, "-q", "--shard", f"{i}/2", check=True)
-        shards.append(s)
-    merged = tmp_path / "m.h5"
-    run_toral("merge", merged, *shards, check=True)
+    merged = shard_and_merge(run_toral, cfg, tmp_path)
     with h5py.File(h5, "r") as a, h5py.File(merged, "r") as b:
         for k in ("/points/transient_differs", "/transient/lambda_max", "/transient/lyapunov_rate", "/transient/gap"):
             np.testing.assert_array_equal(a[k][:], b[k][:], err_msg=k)
