@@ -59,6 +59,19 @@ inline CoordDecl index_axis(const std::string& path, std::int64_t n, const std::
   return c;
 }
 
+// A 1-D integer axis with the given values at `path`.
+inline CoordDecl int_axis(const std::string& path, std::vector<std::int64_t> values, const std::string& units,
+                          const std::string& meaning) {
+  CoordDecl c;
+  c.path = path;
+  c.type = Elem::I64;
+  c.dims = {path};
+  c.i = std::move(values);
+  c.units = units;
+  c.meaning = meaning;
+  return c;
+}
+
 // A 1-D float axis with the given values at `path`.
 inline CoordDecl value_axis(const std::string& path, std::vector<double> values, const std::string& units,
                             const std::string& meaning) {

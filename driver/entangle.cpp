@@ -467,14 +467,7 @@ Schema declare_entanglement(const Config& c) {
     s.coords.push_back(std::move(r));
   }
   if (!e.stabilizer_dims.empty()) {
-    CoordDecl n;
-    n.path = kN;
-    n.type = Elem::I64;
-    n.dims = {kN};
-    n.i = e.stabilizer_dims;
-    n.units = "1";
-    n.meaning = "local dimension N: axis 1 of every per-point dataset";
-    s.coords.push_back(std::move(n));
+    s.coords.push_back(int_axis(kN, e.stabilizer_dims, "1", "local dimension N: axis 1 of every per-point dataset"));
     if (e.profile) {
       const std::string q = std::string(kG) + "/stabilizer";
       s.coords.push_back(index_axis(q + "/profile_t", e.periods / e.profile_stride + 1, "periods",
@@ -609,14 +602,12 @@ EntanglementValues compute_values(const Config& c, const Point& p, const PointRe
           v.ent_transient_window[k] = std::min(sites.front(), L - 1 - sites.back()) / 2;
         }
       if (gs.translation_invariant) {  // the ring of the same gates: its Bloch spectrum
-        GateSource ring = gs;
-        ring.boundary = Boundary::Periodic;
-        ring.L = L + (L % 2);
-        const Spectrum sp = bloch_spectrum(materialize(ring));
+        const Spectrum sp = twin_ring_spectrum(gs);
+        const auto ring_L = static_cast<std::int64_t>(sp.exponents.size() / 2);
         for (std::size_t k = 0; k < nr; ++k)
           if (fits[k])
             v.ent_transient_rate[k] =
-                lyapunov_rate(sp.exponents, ring.L, static_cast<std::int64_t>(E.regions[k].sites.size()));
+                lyapunov_rate(sp.exponents, ring_L, static_cast<std::int64_t>(E.regions[k].sites.size()));
       }
     }
   } catch (const std::exception& ex) {

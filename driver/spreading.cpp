@@ -183,14 +183,8 @@ class SpreadingDiagnostic final : public Diagnostic {
                         "exponent (rates, not bounds: the finite-t correction is of order ln T / T)",
                         {AttrDecl::of("component", std::string(e.momentum ? "p" : "q")),
                          AttrDecl::of("light_cone_velocity", kLightCone)}});
-    CoordDecl t;
-    t.path = kT;
-    t.type = Elem::I64;
-    t.dims = {kT};
-    t.i = kept_times(e);
-    t.units = "periods";
-    t.meaning = "the kept times of the profile: multiples of the stride, and T";
-    s.coords.push_back(std::move(t));
+    s.coords.push_back(
+        int_axis(kT, kept_times(e), "periods", "the kept times of the profile: multiples of the stride, and T"));
     s.coords.push_back(index_axis(kSite, largest_lattice(c), "1", "site index i, 0 .. the largest L of the run"));
     s.coords.push_back(value_axis(kV, velocity_grid(e), "sites/period",
                                   "ray velocity v on [-2, 2], the brick-wall's light cone"));

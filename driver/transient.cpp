@@ -6,10 +6,11 @@
 // On by default for every config with an open-chain sweep (`[transient]
 // enabled = false` turns it off); group /transient and /points/transient_differs
 // (docs/layout.md), explained in docs/rays.md ("Open chains: the transient
-// rate") and docs/bounds.md. Clean circuits only (translation-invariant gates
+// rate") and docs/bounds.md. Clean circuits (translation-invariant gates
 // repeated every period): the bulk rates come exactly from the Bloch symbol
-// (kernels/rays.hpp, kernels/bloch.hpp); disordered or redrawn chains are
-// padding and flag -1 (their measured lambda(v) is in /spreading).
+// (kernels/rays.hpp, kernels/bloch.hpp). Disordered or redrawn chains: the
+// transient lambda_max is measured from exact integer responses
+// (kernels/spreading.hpp, peak_rate); their region rates are not (NaN).
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -148,17 +149,12 @@ class TransientDiagnostic final : public Diagnostic {
         {kG,
          "open chains: the rates seen while perturbations travel through the chain (t < window), beside the "
          "eigenvalue exponents (t -> infinity) in /chaos. Clean circuits (translation-invariant gates, the same "
-         "every period): exact, from the Bloch symbol of the bulk (kernels/rays.hpp). Rates, not bounds. Padding "
-         "for rings and for disordered or redrawn circuits (docs/rays.md, 'Open chains: the transient rate')",
+         "every period): exact, from the Bloch symbol of the bulk (kernels/rays.hpp); disordered or redrawn chains: "
+         "lambda_max measured from exact integer responses (method 2). Rates, not bounds. Padding for rings and for "
+         "chains too short to measure (docs/rays.md, 'Open chains: the transient rate')",
          {}});
-    CoordDecl ell;  // the region sizes of [bounds], as /bounds/region_size
-    ell.path = kEll;
-    ell.type = Elem::I64;
-    ell.dims = {kEll};
-    ell.i = c.bounds.regions;
-    ell.units = "sites";
-    ell.meaning = "region size ell (the values of /bounds/region_size): the axis of lyapunov_rate";
-    s.coords.push_back(std::move(ell));
+    s.coords.push_back(int_axis(kEll, c.bounds.regions, "sites",
+                                "region size ell (the values of /bounds/region_size): the axis of lyapunov_rate"));
     s.fields.push_back(field("lambda_max", {}, "1/period",
                              "the transient rate: max_v lambda(v) = the bulk lambda_max of the same gates, the rate "
                              "along the ray x = peak_velocity t, seen for t < window",
@@ -237,15 +233,13 @@ class TransientDiagnostic final : public Diagnostic {
         out.fields[kMethod] = scalar_value(std::int64_t{1});
         out.fields[kPeriods] = scalar_value(std::int64_t{-1});
         out.fields[kStarts] = scalar_value(std::int64_t{-1});
-        // Lambda_ell of the ring of the same gates (an even number of sites for the brick-wall).
-        GateSource ring = gs;
-        ring.boundary = Boundary::Periodic;
-        ring.L = p.L + (p.L % 2);
-        const Spectrum sp = bloch_spectrum(materialize(ring));
+        // Lambda_ell of the ring of the same gates
+        const Spectrum sp = twin_ring_spectrum(gs);
+        const auto ring_L = static_cast<std::int64_t>(sp.exponents.size() / 2);
         FieldValue& reg = out.fields[kRegion];
         reg.shape = {static_cast<std::int64_t>(c.bounds.regions.size())};
         for (std::int64_t ell : c.bounds.regions)
-          reg.f.push_back(ell >= 1 && ell <= p.L - 1 ? lyapunov_rate(sp.exponents, ring.L, ell) : kNaN);
+          reg.f.push_back(ell >= 1 && ell <= p.L - 1 ? lyapunov_rate(sp.exponents, ring_L, ell) : kNaN);
       } else {
         const PeakRate m = measured_rate(gs, spec_of(c).periods, spec_of(c).starts);
         out.fields[kMethod] = scalar_value(std::int64_t{2});

@@ -739,6 +739,13 @@ Spectrum ring_spectrum(const Circuit& c, Bands* bands) {
 
 Spectrum bloch_spectrum(const Circuit& c) { return ring_spectrum(c, nullptr); }
 
+Spectrum twin_ring_spectrum(const GateSource& g) {
+  GateSource ring = g;
+  ring.boundary = Boundary::Periodic;
+  ring.L = g.L + (g.L % 2);
+  return bloch_spectrum(materialize(ring));
+}
+
 Bands ring_bands(const Circuit& c) {
   Bands b;
   (void)ring_spectrum(c, &b);

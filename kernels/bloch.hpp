@@ -44,6 +44,12 @@ std::vector<double> bloch_exponents(const Circuit& c, double k);
 // recomputed from certified enclosures of the roots of the exact F(lambda, z).
 Spectrum bloch_spectrum(const Circuit& c);
 
+// The spectrum of the periodic ring of the same gates as the translation-
+// invariant lattice g (any boundary; L rounded up to even, as the brick-wall
+// needs): for an open chain, what a bulk region sees while its backward light
+// cone stays inside (docs/rays.md). The ring's L is spectrum.exponents.size() / 2.
+Spectrum twin_ring_spectrum(const GateSource& g);
+
 // Per-site quantities of the same circuit for L -> infinity. The circuit's L
 // only fixes the gates; any even L >= 2 describes the same limit. The KS
 // integral is split at the kinks (where eigenvalues leave the unit circle,
